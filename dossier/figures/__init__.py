@@ -1,0 +1,1 @@
+"""One function per figure: plain data in, deterministic SVG text out."""

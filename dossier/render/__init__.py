@@ -1,0 +1,1 @@
+"""Rendering: Markdown notes, HTML pages from the jinja templates (PDF comes later)."""

@@ -1,0 +1,75 @@
+"""One jinja environment over ``templates/``, with the filters the pages use."""
+
+from __future__ import annotations
+
+from functools import lru_cache
+from pathlib import Path
+
+from dossier.fmt import fmt_number, fmt_probability
+from dossier.rules.base import OUTCOME_WORDS
+
+PACKAGE_TEMPLATES = Path(__file__).resolve().parent.parent / "_templates"
+SOURCE_TEMPLATES = Path(__file__).resolve().parent.parent.parent / "templates"
+
+
+def templates_dir() -> Path:
+    """``templates/`` of a source checkout (editable install), else the copy inside the wheel."""
+    for candidate in (SOURCE_TEMPLATES, PACKAGE_TEMPLATES):
+        if (candidate / "system.html").is_file():
+            return candidate
+    raise FileNotFoundError("the page templates are missing from this installation; reinstall dossier")
+
+
+def fmt_quantity(q) -> str:
+    """'value ± uncertainty unit' or 'value (low–high) unit'."""
+    if q.value is None:
+        return "—"
+    text = fmt_number(q.value)
+    if q.uncertainty is not None:
+        text += f" ± {fmt_number(q.uncertainty, 2)}"
+    if q.low is not None and q.high is not None:
+        text += f" ({fmt_number(q.low)}–{fmt_number(q.high)})"
+    if q.unit:
+        text += f" {q.unit}"
+    return text
+
+
+def fmt_strength(value: float | None) -> str:
+    if value is None:
+        return ""
+    if abs(value) >= 99:
+        return "≥ +99" if value > 0 else "≤ −99"
+    return f"{value:+.2f}".replace("-", "−")
+
+
+def fmt_measured(m) -> str:
+    if m is None:
+        return "—"
+    return f"{fmt_number(m.value)} ± {fmt_number(m.uncertainty, 2)}"
+
+
+@lru_cache(maxsize=1)
+def environment():
+    from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
+
+    env = Environment(
+        loader=FileSystemLoader(str(templates_dir())),
+        autoescape=select_autoescape(["html"]),
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters.update(
+        probability=fmt_probability,
+        number=fmt_number,
+        quantity=fmt_quantity,
+        strength=fmt_strength,
+        measured=fmt_measured,
+        outcome_words=lambda o: OUTCOME_WORDS[o],
+    )
+    return env
+
+
+def render_page(template: str, **context) -> str:
+    return environment().get_template(template).render(**context)

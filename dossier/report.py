@@ -1,0 +1,114 @@
+"""What ``dossier weigh`` prints: stable JSON, or rich tables for people.
+
+The JSON format is documented in ``docs/weigh-json.md``; its
+``format_version`` is bumped whenever a key changes meaning or goes away.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+from dossier import __version__
+from dossier.engine import SystemResult
+from dossier.fmt import fmt_number, fmt_probability
+from dossier.rules.registry import RULES
+
+FORMAT_VERSION = 1
+
+
+def _clean(value: Any) -> Any:
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    return value
+
+
+def system_dict(result: SystemResult) -> dict[str, Any]:
+    system = result.system
+    return {
+        "id": system.id,
+        "title": system.title,
+        "components": list(system.components),
+        "pairs": [{"id": p.id, "members": list(p.members), "parent": p.parent} for p in system.pairs],
+        "verdicts": [result.verdicts[p.id].to_dict() for p in system.pairs],
+        "assessments": [a.to_dict() for a in result.assessments],
+    }
+
+
+def to_json(title: str, results: dict[str, SystemResult]) -> str:
+    doc = {
+        "format": "dossier-weigh",
+        "format_version": FORMAT_VERSION,
+        "dossier_version": __version__,
+        "project": title,
+        "systems": [system_dict(r) for r in results.values()],
+    }
+    return json.dumps(_clean(doc), indent=2, ensure_ascii=False) + "\n"
+
+
+STATUS_STYLE = {"bound": "bold green", "co-moving": "bold cyan", "optical": "bold red", "undetermined": "bold yellow"}
+SHORT_OUTCOME = {"supports": "supports", "against": "against", "neutral": "neutral", "insufficient": "no data",
+                 "error": "ERROR"}
+OUTCOME_STYLE = {"supports": "green", "against": "red", "neutral": "white", "insufficient": "dim", "error": "bold magenta"}
+
+
+def _statistic(a) -> str:
+    if a.statistic is None or a.statistic.value is None:
+        return ""
+    s = a.statistic
+    return f"{s.label} = {s.value:.3g}{(' ' + s.unit) if s.unit else ''}"
+
+
+def print_results(console, results: dict[str, SystemResult]) -> None:
+    """Rich tables: per system, the verdict of each pair and the assessments behind it."""
+    from rich.table import Table
+    from rich.text import Text
+
+    for result in results.values():
+        system = result.system
+        console.rule(Text(f"{system.id} — {system.title}", style="bold"))
+        distances = [a for a in result.assessments if a.rule == "distance"]
+        if distances:
+            table = Table(title="Components", title_justify="left", show_lines=False, expand=True)
+            for col in ("Component", "Parallax (mas)", "Distance (pc, 16–84 %)", "Note"):
+                table.add_column(col)
+            for a in distances:
+                plx, dist = a.quantity("parallax"), a.quantity("distance")
+                if plx is None or dist is None:
+                    table.add_row(a.subject, "—", "—", Text(a.explanation, style="dim"))
+                    continue
+                note = a.explanation.split(". ", 1)[1] if ". " in a.explanation else ""
+                table.add_row(a.subject, f"{plx.value:.3f} ± {plx.uncertainty:.3f}",
+                              f"{fmt_number(dist.value)} ({fmt_number(dist.low)}–{fmt_number(dist.high)})", note)
+            console.print(table)
+        for pair in system.pairs:
+            v = result.verdicts[pair.id]
+            head = Text()
+            head.append(f"Pair {pair.id} ({' + '.join(pair.members)}): ")
+            head.append(v.status.upper(), style=STATUS_STYLE[v.status])
+            head.append(f"  probability {fmt_probability(v.probability)}")
+            head.append(f"   P(physical) {fmt_probability(v.p_physical)}, P(bound | physical) "
+                        f"{fmt_probability(v.p_bound_given_physical)}")
+            console.print(head)
+            console.print(Text(v.summary, style="italic"))
+            table = Table(expand=True, show_lines=True)
+            table.add_column("Rule", min_width=max(len(r.id) for r in RULES), no_wrap=True)
+            table.add_column("Outcome", max_width=9)
+            table.add_column("log10 LR", justify="right", no_wrap=True, max_width=9)
+            table.add_column("Explanation", ratio=1, min_width=30)
+            for a in result.for_subject(pair.id):
+                table.add_row(
+                    a.rule,
+                    Text(SHORT_OUTCOME[a.outcome], style=OUTCOME_STYLE[a.outcome]),
+                    "" if a.strength is None else f"{a.strength:+.2f}",
+                    a.explanation,
+                )
+            console.print(table)
+        console.print()
+    console.print(Text("Verdicts are statistical statements about the evidence at hand, under the assumptions and "
+                       "priors listed in each dossier.", style="dim"))

@@ -1,0 +1,293 @@
+"""Inputs shared by the rules, derived once per system.
+
+Several rules need the same derived inputs: each component's combined
+parallax and distance, its best position and proper motion, a pair's
+separation and total mass. They are computed here once, vectorised over the
+components of a system, so that rules stay short and never disagree about
+an input. Nothing here judges: judging is the rules' job.
+
+Choices (see ``docs/decisions.md``):
+
+* Parallaxes of several sources are combined by inverse-variance weighting
+  with the Birge-ratio inflation (:func:`dossier.astro.distance.combine_parallaxes`).
+* Proper motion and position come from the single most precise solution
+  that has them (proper motions of different epochs are not averaged: an
+  unresolved companion makes them differ for real).
+* A pair member that is itself a pair is represented, for astrometry, by its
+  first member (its primary), and for mass by the sum of its members.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from dossier.astro import angles, distance
+from dossier.schema.models import Astrometry, Measured, System
+from dossier.schema.settings import Settings
+
+
+def julian_year(epoch: str) -> float:
+    """Julian epoch (years) of an epoch string of the evidence model."""
+    if epoch.startswith("J"):
+        return float(epoch[1:])
+    from astropy.time import Time
+
+    if epoch.startswith("B"):
+        return float(Time(float(epoch[1:]), format="byear", scale="tt").jyear)
+    return float(Time(epoch, scale="utc").jyear)
+
+
+@dataclass(frozen=True)
+class ParallaxSource:
+    ref: str
+    value: float
+    error: float
+    epoch: str
+
+
+@dataclass(frozen=True)
+class StarParallax:
+    """Combined parallax of one component, mas."""
+
+    sources: tuple[ParallaxSource, ...]
+    mean: float
+    error: float
+    error_inflated: float
+    chi2: float
+    dof: int
+    p_value: float
+    birge_ratio: float
+    discordant: str | None
+    residual_sigma: tuple[float, ...]
+    distance_mode_pc: float
+    distance_q16_pc: float
+    distance_q50_pc: float
+    distance_q84_pc: float
+    precision: str
+
+    @property
+    def fractional_error(self) -> float:
+        return self.error_inflated / self.mean if self.mean > 0 else math.inf
+
+
+@dataclass(frozen=True)
+class Motion:
+    """Proper motion (mas/yr, RA component × cos δ) of one solution."""
+
+    pmra: float
+    pmdec: float
+    pmra_error: float
+    pmdec_error: float
+    ref: str
+
+
+@dataclass(frozen=True)
+class Position:
+    ra: float
+    dec: float
+    jyear: float
+    ref: str
+
+
+@dataclass(frozen=True)
+class StarFacts:
+    id: str
+    parallax: StarParallax | None
+    position: Position | None
+    motion: Motion | None
+    radial_velocity: Measured | None
+    mass: Measured | None
+    magnitudes: dict[str, Measured]
+
+
+@dataclass(frozen=True)
+class PairFacts:
+    id: str
+    first: str
+    second: str
+    rho_arcsec: float | None
+    theta_deg: float | None
+    separation_how: str
+    separation_refs: tuple[str, ...]
+
+
+def _ref(value: Measured, record: Astrometry) -> str:
+    return value.ref or record.ref
+
+
+def _best(entries: list[Astrometry], key) -> Astrometry | None:
+    usable = [e for e in entries if key(e) is not None]
+    return min(usable, key=key) if usable else None
+
+
+class SystemFacts:
+    """Derived inputs for the rules of one system."""
+
+    def __init__(self, system: System, settings: Settings, length_scale_kpc: float = 1.35):
+        self.system = system
+        self.settings = settings
+        self.length_scale_kpc = length_scale_kpc
+        self.pair_ids = {p.id: p for p in system.pairs}
+
+    # -- components ---------------------------------------------------------
+
+    @cached_property
+    def stars(self) -> dict[str, StarFacts]:
+        comps = self.system.components
+        ids = list(comps)
+        sources = {
+            cid: tuple(
+                ParallaxSource(_ref(a.parallax, a), a.parallax.value, a.parallax.uncertainty, a.epoch)
+                for a in comp.astrometry
+                if a.parallax is not None
+            )
+            for cid, comp in comps.items()
+        }
+        with_plx = [cid for cid in ids if sources[cid]]
+        combined: dict[str, StarParallax] = {}
+        if with_plx:
+            width = max(len(sources[c]) for c in with_plx)
+            values = np.full((len(with_plx), width), np.nan)
+            errors = np.full((len(with_plx), width), np.nan)
+            for row, cid in enumerate(with_plx):
+                for col, s in enumerate(sources[cid]):
+                    values[row, col], errors[row, col] = s.value, s.error
+            c = distance.combine_parallaxes(values, errors)
+            mode = distance.edsd_mode(c.mean, c.error_inflated, self.length_scale_kpc)
+            quant = distance.edsd_quantiles(c.mean, c.error_inflated, self.length_scale_kpc, q=(0.16, 0.5, 0.84))
+            precision = distance.fractional_error_class(c.mean, c.error_inflated)
+            for row, cid in enumerate(with_plx):
+                k = int(c.discordant[row])
+                n = len(sources[cid])
+                combined[cid] = StarParallax(
+                    sources=sources[cid],
+                    mean=float(c.mean[row]),
+                    error=float(c.error[row]),
+                    error_inflated=float(c.error_inflated[row]),
+                    chi2=float(c.chi2[row]),
+                    dof=int(c.dof[row]),
+                    p_value=float(c.p_value[row]),
+                    birge_ratio=float(c.birge_ratio[row]),
+                    discordant=sources[cid][k].ref if 0 <= k < n else None,
+                    residual_sigma=tuple(float(x) for x in c.residual_sigma[row, :n]),
+                    distance_mode_pc=1000.0 * float(mode[row]),
+                    distance_q16_pc=1000.0 * float(quant[row, 0]),
+                    distance_q50_pc=1000.0 * float(quant[row, 1]),
+                    distance_q84_pc=1000.0 * float(quant[row, 2]),
+                    precision=str(precision[row]),
+                )
+        out = {}
+        for cid, comp in comps.items():
+            pos = _best(comp.astrometry, lambda a: None if a.ra is None else -julian_year(a.epoch))
+            mot = _best(comp.astrometry, lambda a: None if a.pmra is None else a.pmra.uncertainty**2 + a.pmdec.uncertainty**2)
+            phys = comp.physical
+            mass = None
+            if phys is not None and phys.mass is not None:
+                mass = phys.mass if phys.mass.ref else phys.mass.model_copy(update={"ref": phys.ref})
+            out[cid] = StarFacts(
+                id=cid,
+                parallax=combined.get(cid),
+                position=None if pos is None else Position(pos.ra.value, pos.dec.value, julian_year(pos.epoch), _ref(pos.ra, pos)),
+                motion=None
+                if mot is None
+                else Motion(mot.pmra.value, mot.pmdec.value, mot.pmra.uncertainty, mot.pmdec.uncertainty, _ref(mot.pmra, mot)),
+                radial_velocity=comp.radial_velocity,
+                mass=mass,
+                magnitudes=dict(comp.magnitudes),
+            )
+        return out
+
+    # -- pairs --------------------------------------------------------------
+
+    def representative(self, member: str) -> str:
+        """The component that stands for a member in astrometry (a pair's primary)."""
+        seen = set()
+        while member in self.pair_ids and member not in self.system.components:
+            if member in seen:  # pragma: no cover - the loader refuses cycles of ids
+                break
+            seen.add(member)
+            member = self.pair_ids[member].members[0]
+        return member
+
+    def member_mass(self, member: str) -> tuple[float, float, tuple[str, ...]] | None:
+        """Mass (value, uncertainty, refs) of a member; a pair's is the sum of its members'."""
+        if member in self.system.components:
+            m = self.stars[member].mass
+            return None if m is None else (m.value, m.uncertainty, (m.ref,) if m.ref else ())
+        pair = self.pair_ids.get(member)
+        if pair is None:
+            return None
+        parts = [self.member_mass(m) for m in pair.members]
+        if any(p is None for p in parts):
+            return None
+        return (
+            sum(p[0] for p in parts),
+            math.sqrt(sum(p[1] ** 2 for p in parts)),
+            tuple(r for p in parts for r in p[2]),
+        )
+
+    def pair_mass(self, pair_id: str) -> tuple[float, float, tuple[str, ...]] | None:
+        return self.member_mass(pair_id)
+
+    @cached_property
+    def pairs(self) -> dict[str, PairFacts]:
+        out = {}
+        for pair in self.system.pairs:
+            first, second = (self.representative(m) for m in pair.members)
+            a, b = self.stars.get(first), self.stars.get(second)
+            rho = theta = None
+            how, refs = "", ()
+            if a is not None and b is not None and a.position and b.position:
+                ra2, dec2 = b.position.ra, b.position.dec
+                if b.motion is not None and abs(b.position.jyear - a.position.jyear) > 1e-6:
+                    ra2, dec2 = angles.propagate_linear(
+                        ra2, dec2, b.motion.pmra, b.motion.pmdec, a.position.jyear - b.position.jyear
+                    )
+                r, t = angles.separation_pa(a.position.ra, a.position.dec, ra2, dec2)
+                rho, theta = float(r), float(t)
+                how = f"from the positions of {first} and {second} at epoch J{a.position.jyear:.2f}"
+                refs = (a.position.ref, b.position.ref)
+            elif pair.measures:
+                latest = max(pair.measures, key=lambda m: julian_year(m.epoch))
+                rho, theta = latest.rho.value, latest.theta.value
+                how = f"from the latest measure of the pair ({latest.epoch})"
+                refs = tuple(r for r in (latest.rho.ref or latest.ref,) if r)
+            out[pair.id] = PairFacts(pair.id, first, second, rho, theta, how, refs)
+        return out
+
+    def pair_parallax(self, pair_id: str) -> tuple[float, float] | None:
+        """Parallax (mas) of a pair: the inverse-variance mean of its members' (the best estimate if
+        physical), or the first member's when the two disagree by more than 3σ."""
+        f = self.pairs[pair_id]
+        values = [self.stars[m].parallax for m in (f.first, f.second) if self.stars[m].parallax is not None]
+        if not values:
+            return None
+        if len(values) == 2 and abs(values[0].mean - values[1].mean) > 3 * math.hypot(
+            values[0].error_inflated, values[1].error_inflated
+        ):
+            # the parallaxes disagree: a mean would be nobody's distance; use the first member's
+            values = values[:1]
+        w = np.array([1 / p.error_inflated**2 for p in values])
+        x = np.array([p.mean for p in values])
+        return float(np.sum(w * x) / np.sum(w)), float(1 / math.sqrt(np.sum(w)))
+
+    def pair_distance_pc(self, pair_id: str) -> tuple[float, float, float] | None:
+        """Distance of a pair (pc): 16, 50, 84 % points of the posterior from the pair parallax."""
+        return self._pair_distances[pair_id]
+
+    @cached_property
+    def _pair_distances(self) -> dict[str, tuple[float, float, float] | None]:
+        ids = list(self.pairs)
+        plx = {pid: self.pair_parallax(pid) for pid in ids}
+        known = [pid for pid in ids if plx[pid] is not None]
+        out: dict[str, tuple[float, float, float] | None] = {pid: None for pid in ids}
+        if known:
+            q = distance.edsd_quantiles(np.array([plx[p][0] for p in known]), np.array([plx[p][1] for p in known]),
+                                        self.length_scale_kpc, q=(0.16, 0.5, 0.84))
+            for row, pid in enumerate(known):
+                out[pid] = (1000.0 * float(q[row, 0]), 1000.0 * float(q[row, 1]), 1000.0 * float(q[row, 2]))
+        return out

@@ -1,0 +1,106 @@
+"""Radial-velocity agreement of a pair against the largest orbital speed.
+
+Method
+    The members' radial-velocity difference ΔRV is compared with the
+    speeds a bound orbit allows at the projected separation s = ρ d: the
+    circular speed v_c = √(G M / s) and the escape speed √2 v_c (Kepler's
+    third law; common practice). Since the true separation is at least s,
+    these are upper limits. A systematic allowance ``systematic_kms`` is
+    added in quadrature for the difference in gravitational redshift and
+    convective blueshift between stars of different kinds (a few hundred
+    m/s between a giant and a dwarf; common practice, from memory).
+
+Strength
+    The log10 likelihood ratio bound : unbound of the measured ΔRV
+    (:mod:`dossier.astro.binding`): bound, the true difference lies within
+    the escape speed; unbound, it is above it, drawn from a loose group's
+    dispersion ``group_dispersion_kms``. An imprecise ΔRV gives a ratio
+    near 1 and does not move the verdict.
+
+Outcome
+    ``supports`` above +0.5, ``against`` below −0.5, ``neutral`` between.
+
+Insufficient data
+    A member lacks a radial velocity, or the pair lacks a parallax, a
+    separation or a total mass. A component with a radial-velocity series
+    but no single value is a spectroscopic binary whose systemic velocity is
+    needed: that comes with the orbit fit.
+"""
+
+from __future__ import annotations
+
+import math
+
+from pydantic import Field
+
+from dossier.astro import binary, binding
+from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
+from dossier.rules.facts import SystemFacts
+from dossier.rules.proper_motion_orbit import binding_strength, outcome_of
+
+
+class Settings(RuleSettings):
+    systematic_kms: float = Field(default=0.5, ge=0, description="Systematic allowance between two stars' RVs (km/s).")
+    group_dispersion_kms: float = Field(default=1.0, gt=0, description="Per-axis dispersion of unbound group members (km/s).")
+    decisive: float = Field(default=0.5, gt=0)
+
+
+def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
+    pair = facts.pairs[subject]
+    a, b = facts.stars[pair.first], facts.stars[pair.second]
+    missing = [f"radial velocity of {s.id}" for s in (a, b) if s.radial_velocity is None]
+    dist = facts.pair_distance_pc(subject)
+    mass = facts.pair_mass(subject)
+    if dist is None:
+        missing.append("parallax")
+    if pair.rho_arcsec is None:
+        missing.append("separation")
+    if mass is None:
+        missing.append("total mass")
+    if missing:
+        return RULE.insufficient(subject, f"Needs {', '.join(missing)}.")
+    if pair.first == pair.second:
+        return RULE.insufficient(subject, f"Both members are represented by {pair.first}.")
+    assert a.radial_velocity and b.radial_velocity and dist and mass and pair.rho_arcsec
+    diff = a.radial_velocity.value - b.radial_velocity.value
+    sigma = math.sqrt(a.radial_velocity.uncertainty**2 + b.radial_velocity.uncertainty**2 + settings.systematic_kms**2)
+    s_au = pair.rho_arcsec * dist[1]
+    v_c = float(binary.circular_speed_kms(mass[0], s_au))
+    v_esc = float(binary.escape_speed_kms(mass[0], s_au))
+    strength, p_bound = binding_strength(
+        float(binding.log_lr_bound_line(diff, sigma, v_esc, settings.group_dispersion_kms))
+    )
+    outcome = outcome_of(strength, settings.decisive)
+    text = (f"ΔRV = {diff:+.2f} ± {sigma:.2f} km/s against a circular speed of {v_c:.2f} km/s and an escape speed of "
+            f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au: likelihood ratio bound : unbound 10^{strength:.1f}.")
+    if outcome == "against":
+        text += " The pair moves too fast to be bound."
+    elif outcome == "neutral":
+        text += " The measurement cannot tell bound from unbound."
+    refs = [r for r in (a.radial_velocity.ref, b.radial_velocity.ref) if r]
+    return RULE.assessment(
+        subject, outcome, text, strength=strength, probability=p_bound,
+        statistic=Quantity("z", "|ΔRV| / σ", abs(diff) / sigma, "σ"),
+        quantities=(
+            Quantity("delta_rv", "Radial-velocity difference", diff, "km/s", sigma),
+            Quantity("projected_separation", "Projected separation", s_au, "au"),
+            Quantity("circular_speed", "Circular speed at that separation", v_c, "km/s"),
+            Quantity("escape_speed", "Escape speed at that separation", v_esc, "km/s"),
+            Quantity("p_bound", "P(bound) from this line alone, even prior", p_bound, ""),
+        ),
+        sources=tuple(dict.fromkeys((*refs, *mass[2]))),
+    )
+
+
+RULE = Rule(
+    id="radial-velocity-agreement",
+    title="Radial-velocity agreement",
+    version=1,
+    subject="pair",
+    question="binding",
+    needs=("a radial velocity for each member", "a parallax", "the separation", "the total mass"),
+    citation="Kepler's third law (circular and escape speed at the projected separation); common practice",
+    settings=Settings,
+    weigh=weigh,
+    doc=__doc__ or "",
+)

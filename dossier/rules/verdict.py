@@ -1,0 +1,115 @@
+"""Combine a pair's assessments into a status, a probability and the reasons.
+
+Association
+    Each ``association`` assessment contributes its strength, a log10
+    likelihood ratio physical : optical, capped at ±``max_strength`` so that
+    no single model of the field population can decide alone. Their sum,
+    plus ``prior_log10_odds``, is the log10 posterior odds, treating the
+    lines of evidence as independent (they use different measurements:
+    parallaxes, motions, the density of the field).
+    P(physical) = 1 / (1 + 10^−odds).
+
+Binding
+    Each ``binding`` assessment gives the log10 likelihood ratio
+    bound : unbound of a measured velocity difference (tangential, radial).
+    Capped the same way and added to ``prior_bound_log10_odds``, they give
+    P(bound | physical). Motion tests are necessary, not sufficient:
+    projection can only hide motion and separation.
+
+Status
+    ``bound`` when P(physical) ≥ ``physical_threshold`` and
+    P(bound | physical) ≥ ``bound_threshold``, with probability
+    P(physical) × P(bound | physical). ``co-moving`` when P(physical) ≥
+    ``physical_threshold`` and P(bound | physical) ≤ ``unbound_threshold``,
+    with probability P(physical) × (1 − P(bound | physical)). ``optical``
+    when P(physical) ≤ ``optical_threshold``, with probability
+    1 − P(physical). ``undetermined`` otherwise (including when no motion
+    test could be made), with P(physical) given.
+
+Reasons
+    Reasons are given relative to the status: for an optical pair, a
+    parallax disagreement is a reason for; for a co-moving pair, motion
+    beyond the escape speed is. Every assessment that argues against the
+    status is listed among the reasons against: a verdict never hides a
+    contradicting line of evidence.
+"""
+
+from __future__ import annotations
+
+from dossier.fmt import p_statement
+from dossier.rules.base import Assessment, Verdict
+from dossier.schema.settings import VerdictSettings
+
+
+def _p_from_log_odds(x: float) -> float:
+    return 1.0 / (1.0 + 10.0 ** (-x)) if x > -300 else 0.0
+
+
+def _direction(a: Assessment, status: str) -> int:
+    """+1 if the assessment speaks for the status, −1 against, 0 neither."""
+    sign = {"supports": 1, "against": -1}.get(a.outcome, 0)
+    if a.question == "association":
+        return -sign if status == "optical" else sign
+    if a.question == "binding":
+        if status == "co-moving":
+            return -sign
+        if status == "optical":
+            return 0
+        return sign
+    return 0
+
+
+def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings) -> Verdict:
+    assoc = [a for a in assessments if a.question == "association" and a.strength is not None]
+    binding = [a for a in assessments if a.question == "binding" and a.strength is not None]
+    cap = settings.max_strength
+
+    def capped(a: Assessment) -> float:
+        return max(-cap, min(cap, a.strength))  # type: ignore[arg-type]
+
+    log_odds = settings.prior_log10_odds + sum(capped(a) for a in assoc)
+    p_phys = _p_from_log_odds(log_odds) if assoc else None
+    bound_odds = settings.prior_bound_log10_odds + sum(capped(a) for a in binding)
+    p_bound = _p_from_log_odds(bound_odds) if binding else None
+
+    if p_phys is None:
+        status, prob = "undetermined", None
+        summary = "No line of evidence on association could be weighed."
+    elif p_phys >= settings.physical_threshold and p_bound is not None and p_bound >= settings.bound_threshold:
+        status, prob = "bound", p_phys * p_bound
+        summary = (f"Physical ({p_statement('P', p_phys)}) and bound: its motion allows a bound orbit "
+                   f"({p_statement('P(bound)', p_bound)}).")
+    elif p_phys >= settings.physical_threshold and p_bound is not None and p_bound <= settings.unbound_threshold:
+        status, prob = "co-moving", p_phys * (1 - p_bound)
+        summary = (f"Physical ({p_statement('P', p_phys)}) but moving too fast for a bound orbit "
+                   f"({p_statement('P(bound)', p_bound)}): a co-moving, unbound pair.")
+    elif p_phys <= settings.optical_threshold:
+        status, prob = "optical", 1 - p_phys
+        summary = f"An optical pair: {p_statement('P(physical)', p_phys)}."
+    else:
+        status, prob = "undetermined", p_phys
+        if p_phys >= settings.physical_threshold:
+            summary = (f"Physical ({p_statement('P', p_phys)}), but whether it is bound is open"
+                       + (" (no motion test could be made)." if p_bound is None
+                          else f" ({p_statement('P(bound)', p_bound)})."))
+        else:
+            summary = f"The evidence is not decisive: {p_statement('P(physical)', p_phys)}."
+
+    def line(a: Assessment) -> str:
+        return f"{a.title}: {a.explanation}"
+
+    reasons_for = tuple(line(a) for a in assessments if _direction(a, status) > 0)
+    reasons_against = tuple(line(a) for a in assessments if _direction(a, status) < 0)
+    missing = tuple(line(a) for a in assessments if a.outcome in ("insufficient", "error"))
+    return Verdict(
+        pair=pair,
+        status=status,  # type: ignore[arg-type]
+        probability=prob,
+        p_physical=p_phys,
+        p_bound_given_physical=p_bound,
+        log10_odds=log_odds,
+        summary=summary,
+        reasons_for=reasons_for,
+        reasons_against=reasons_against,
+        missing=missing,
+    )

@@ -1,0 +1,1 @@
+"""The evidence model (pydantic) and the loader that keeps YAML positions."""

@@ -1,0 +1,63 @@
+"""Project settings: the content of ``dossier.toml``.
+
+Every threshold a rule or the verdict uses lives here with its published
+default, so that a collaboration can re-tune it and the dossier can show it.
+Rule-specific settings are tables ``[rules.<rule-id>]`` validated against the
+settings model each rule declares (see :mod:`dossier.rules.base`).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from pydantic import Field
+
+from dossier.schema.models import FieldDensity, Model
+
+
+class ProjectInfo(Model):
+    """Who publishes the dossiers, and where."""
+
+    title: str
+    base_url: str = Field(default="", description="Public address of the built site (for links and citations).")
+    authors: list[str] = Field(default_factory=list)
+    description: str = ""
+
+
+class VerdictSettings(Model):
+    """How a pair's assessments are combined into a status.
+
+    See :mod:`dossier.rules.verdict` for the method. Thresholds are
+    probabilities; ``max_strength`` caps the log10 odds any one line of
+    evidence may contribute, a guard against models of the field population
+    that are too confident in their tails.
+    """
+
+    prior_log10_odds: float = Field(
+        default=0.0, description="log10 prior odds physical:optical before any evidence (0 = even)."
+    )
+    physical_threshold: float = Field(default=0.99, gt=0.5, lt=1)
+    optical_threshold: float = Field(default=0.01, gt=0, lt=0.5)
+    prior_bound_log10_odds: float = Field(
+        default=0.0, description="log10 prior odds bound:unbound for a physical pair before any motion test."
+    )
+    bound_threshold: float = Field(
+        default=0.9, gt=0.5, lt=1, description="P(bound | physical) needed to call a pair bound."
+    )
+    unbound_threshold: float = Field(
+        default=0.1, gt=0, lt=0.5, description="At or below this P(bound | physical), a physical pair is co-moving."
+    )
+    max_strength: float = Field(default=4.0, gt=0, description="Cap on |log10 odds| from any one assessment.")
+
+
+class Settings(Model):
+    """The whole ``dossier.toml``."""
+
+    project: ProjectInfo
+    field_density: list[FieldDensity] = Field(
+        default_factory=list, description="Default field-star density table for systems that give none."
+    )
+    verdict: VerdictSettings = Field(default_factory=VerdictSettings)
+    rules: dict[str, dict[str, Any]] = Field(
+        default_factory=dict, description="Per-rule settings tables, keyed by rule id; 'enabled = false' switches a rule off."
+    )

@@ -1,0 +1,209 @@
+"""Build the static dossier site: the one readable ``build()``.
+
+Stages, in order: load and validate the project, weigh every system, draw
+the figures, render the pages, write them atomically, check the links.
+Same inputs give byte-identical output: nothing here reads the clock or
+iterates in an unordered way.
+"""
+
+from __future__ import annotations
+
+import re
+import shutil
+import tempfile
+from dataclasses import dataclass
+from html.parser import HTMLParser
+from pathlib import Path
+
+from dossier import __version__
+from dossier.draw import Figure, draw_system
+from dossier.engine import SystemResult, weigh_project
+from dossier.errors import DossierError
+from dossier.render.html import render_page, templates_dir
+from dossier.render.markdown import render_markdown
+from dossier.report import system_dict, to_json
+from dossier.rules.registry import BY_ID, RULES, rule_settings
+from dossier.schema.loader import Project, load_project
+
+MARKER = ".dossier-site"
+
+
+@dataclass(frozen=True)
+class RuleSection:
+    """One line of evidence on a system page."""
+
+    id: str
+    title: str
+    citation: str
+    summary: str
+    sections: list[tuple[str, str]]
+    assessments: list
+
+
+def doc_sections(doc: str) -> tuple[str, list[tuple[str, str]]]:
+    """Split a rule's module docstring into its summary and (heading, text) sections."""
+    lines = doc.strip("\n").splitlines()
+    summary_lines, sections = [], []
+    heading, body = None, []
+    for line in lines:
+        if line and not line.startswith(" "):
+            if heading is None and not sections and not body and summary_lines == []:
+                summary_lines.append(line)
+                continue
+            if heading is not None:
+                sections.append((heading, _para(body)))
+            heading, body = line.strip(), []
+        else:
+            body.append(line.strip())
+    if heading is not None:
+        sections.append((heading, _para(body)))
+    return " ".join(summary_lines), sections
+
+
+def _para(lines: list[str]) -> str:
+    return re.sub(r"\s+", " ", " ".join(lines)).replace("``", "").strip()
+
+
+def _rule_sections(result: SystemResult) -> list[RuleSection]:
+    out = []
+    for rule in RULES:
+        found = [a for a in result.assessments if a.rule == rule.id]
+        if not found:
+            continue
+        summary, sections = doc_sections(rule.doc)
+        out.append(RuleSection(rule.id, rule.title, rule.citation, summary, sections, found))
+    return out
+
+
+def _assumptions(project: Project) -> list[tuple[str, str, str]]:
+    """(where, setting, value) for every setting the verdicts depend on."""
+    rows = []
+    for name, field in type(project.settings.verdict).model_fields.items():
+        rows.append(("verdict", name, str(getattr(project.settings.verdict, name))))
+    for rule in RULES:
+        values = rule_settings(project.settings.rules, rule)
+        for name in type(values).model_fields:
+            rows.append((rule.id, name, str(getattr(values, name))))
+    return rows
+
+
+def _cited(project: Project, result: SystemResult) -> list[tuple[str, object]]:
+    from dossier.schema.loader import _refs_in
+
+    ids = {ref for _, ref, _ in _refs_in(result.system, (), None) if ref}
+    for a in result.assessments:
+        ids.update(a.sources)
+    table = result.system.field_density or project.settings.field_density
+    ids.update(r.per_square_degree.ref or r.ref for r in table if (r.per_square_degree.ref or r.ref))
+    return [(ref, project.references[ref]) for ref in sorted(ids) if ref in project.references]
+
+
+def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]]) -> dict[str, str]:
+    """Relative path -> page text."""
+    info = project.settings.project
+    common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
+    pages: dict[str, str] = {}
+    summaries = []
+    for sid, result in results.items():
+        summaries.append({"id": sid, "title": result.system.title, "result": result,
+                          "statuses": sorted({v.status for v in result.verdicts.values()})})
+        pages[f"systems/{sid}/index.html"] = render_page(
+            "system.html",
+            root="../../",
+            system=result.system,
+            result=result,
+            facts=result.facts,
+            figures=figures[sid],
+            rules=_rule_sections(result),
+            notes_html=render_markdown(result.system.notes),
+            note_html=lambda text: render_markdown(text or ""),
+            references=_cited(project, result),
+            assumptions=_assumptions(project),
+            **common,
+        )
+        pages[f"systems/{sid}/weigh.json"] = to_json(info.title, {sid: result})
+    pages["index.html"] = render_page("index.html", root="", systems=summaries,
+                                      description_html=render_markdown(info.description), **common)
+    pages["methods.html"] = render_page("methods.html", root="", rules=[
+        (r, *doc_sections(r.doc)) for r in RULES], verdict_doc=doc_sections(_verdict_doc()), **common)
+    pages["weigh.json"] = to_json(info.title, results)
+    return pages
+
+
+def _verdict_doc() -> str:
+    from dossier.rules import verdict
+
+    return verdict.__doc__ or ""
+
+
+class _Links(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__()
+        self.links: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        for name, value in attrs:
+            if name in ("href", "src") and value and not re.match(r"^[a-z]+:|^#|^//", value):
+                self.links.append(value.split("#")[0])
+
+
+def check_links(root: Path, pages: dict[str, str]) -> list[str]:
+    """Relative links in the pages that point at no file of the site."""
+    broken = []
+    for rel, text in pages.items():
+        if not rel.endswith(".html"):
+            continue
+        parser = _Links()
+        parser.feed(text)
+        for link in parser.links:
+            target = (root / rel).parent / link
+            if link.endswith("/"):
+                target = target / "index.html"
+            if not target.exists():
+                broken.append(f"{rel}: {link}")
+    return broken
+
+
+def write_site(out_dir: Path, pages: dict[str, str]) -> None:
+    """Write the site into a fresh folder, then swap it in: never a half-written site."""
+    out_dir = out_dir.resolve()
+    if out_dir.exists() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
+        raise DossierError(f"{out_dir} is not empty and was not built by dossier; nothing was written. "
+                           "Fix: choose a new or empty folder.")
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.", dir=out_dir.parent))
+    try:
+        for rel, text in sorted(pages.items()):
+            path = staging / rel
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_text(text, encoding="utf-8")
+        shutil.copytree(templates_dir() / "assets", staging / "assets")
+        (staging / MARKER).write_text("built by dossier; this folder is replaced on every build\n", encoding="utf-8")
+        broken = check_links(staging, pages)
+        if broken:
+            raise DossierError("broken links in the built site: " + "; ".join(broken))
+        if out_dir.exists():
+            old = out_dir.with_name(f".{out_dir.name}.old")
+            if old.exists():
+                shutil.rmtree(old)
+            out_dir.rename(old)
+            staging.rename(out_dir)
+            shutil.rmtree(old)
+        else:
+            staging.rename(out_dir)
+    finally:
+        if staging.exists():
+            shutil.rmtree(staging)
+
+
+def build(project_dir: Path | str, out_dir: Path | str) -> Path:
+    """Build the site of a project into ``out_dir``; return the path of its index page."""
+    project = load_project(Path(project_dir))
+    results = weigh_project(project)
+    figures = {sid: draw_system(result) for sid, result in results.items()}
+    pages = render_site(project, results, figures)
+    write_site(Path(out_dir), pages)
+    return Path(out_dir).resolve() / "index.html"
+
+
+__all__ = ["build", "render_site", "write_site", "check_links", "doc_sections", "BY_ID", "system_dict"]
