@@ -287,7 +287,7 @@ def _legend(fig: Figure, seen: _Seen) -> Legend | None:
     if seen.measurement:
         handles.append(Line2D([], [], color=common.MEASUREMENT, marker="o", markersize=5.5,
                               markeredgecolor=common.BACKGROUND, linewidth=1.3))
-        texts.append("measurement ± 1σ")
+        texts.append("measured ± 1σ")
     if seen.discordant:
         handles.append(Line2D([], [], color=common.DISCORDANT, marker="D", markersize=6,
                               markerfacecolor=common.BACKGROUND, markeredgewidth=1.5, linewidth=1.3))
@@ -307,7 +307,8 @@ def _legend(fig: Figure, seen: _Seen) -> Legend | None:
     renderer = common.text_renderer(fig)
     room = fig.bbox.width - 2 * common.PAD_IN * fig.dpi
     for ncols in range(len(handles), 0, -1):
-        legend = fig.legend(handles, texts, loc="upper center", ncols=ncols, handlelength=2.0, columnspacing=1.4)
+        legend = fig.legend(handles, texts, loc="upper center", ncols=ncols, handlelength=1.8, handletextpad=0.5,
+                            columnspacing=1.1)
         if ncols == 1 or legend.get_window_extent(renderer).width <= room:
             return legend
         legend.remove()

@@ -313,7 +313,7 @@ def _nice_years(years: float) -> float:
 
 def _format_years(years: float) -> str:
     if years >= 1 and float(years).is_integer():
-        return f"{int(years):,}".replace(",", " ")  # thin grouping: 10 000
+        return f"{int(years):,}".replace(",", " ")  # digits grouped by spaces, SI style: 10 000
     return f"{years:g}"
 
 
@@ -469,7 +469,9 @@ def _draw_pair(ax: Axes, pair: ChartPair, position: dict[str, tuple[float, float
 Box = tuple[np.ndarray, np.ndarray, np.ndarray]
 """An oriented rectangle: centre, unit axis u, half sizes (along u, along the normal)."""
 
+_PAIR_LABEL_PT = 8.5
 _FRACTIONS = (0.5, 0.4, 0.6, 0.3, 0.7, 0.22, 0.78)
+"""Where along its line a label may sit, in order of preference."""
 _GAP_PX = 2.5
 _PAD_PX = 1.5
 
@@ -572,9 +574,6 @@ def _place_pair_labels(
         )
         label.set_label(f"label of {pair.id}")
         label.set_in_layout(False)
-
-
-_PAIR_LABEL_PT = 8.5
 
 
 def _text_size(ax: Axes, text: str, renderer: RendererBase) -> tuple[float, float]:

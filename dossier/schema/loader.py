@@ -68,6 +68,8 @@ def read_yaml(path: Path, shown: str) -> tuple[Any, list[Problem]]:
         mark = exc.problem_mark or exc.context_mark
         line, col = (mark.line + 1, mark.column + 1) if mark else (0, 0)
         what = (exc.problem or exc.context or "invalid YAML").strip()
+        if exc.context and exc.problem and exc.context_mark is not None and exc.context_mark is not mark:
+            what += f" ({exc.context.strip()} at line {exc.context_mark.line + 1})"
         return None, [Problem(shown, line, col, "", f"YAML syntax error: {what}.", _yaml_fix(what))]
     except YAMLError as exc:  # pragma: no cover - ruamel raises marked errors for text input
         return None, [Problem(shown, 0, 0, "", f"YAML error: {exc}.", "correct the YAML syntax.")]

@@ -26,6 +26,7 @@ from pydantic import (
     ConfigDict,
     Field,
     GetJsonSchemaHandler,
+    WithJsonSchema,
     field_validator,
     model_validator,
 )
@@ -79,9 +80,18 @@ def _epoch_before(value: Any) -> Any:
 Epoch = Annotated[
     str,
     BeforeValidator(_epoch_before),
-    Field(
-        description="Epoch: Julian year 'J2016.0', Besselian year 'B1950.0', or ISO calendar date/time (UTC).",
-        json_schema_extra={"examples": ["J2016.0", "B1950.0", "2019-05-03"]},
+    WithJsonSchema(
+        {
+            "anyOf": [
+                {"type": "string", "pattern": r"^[JB]\d{3,4}(\.\d+)?$"},
+                {"type": "string", "format": "date"},
+                {"type": "string", "format": "date-time"},
+                {"type": "number"},
+            ],
+            "description": "Epoch: Julian year 'J2016.0' (or a bare number, read as a Julian year), Besselian "
+            "year 'B1950.0', or ISO calendar date/time (UTC).",
+            "examples": ["J2016.0", "B1950.0", "2019-05-03", 1985.42],
+        }
     ),
 ]
 

@@ -292,10 +292,10 @@ def test_pair_labels_overlap_neither_each_other_nor_the_edges():
         ax = fig.axes[0]
         renderer = common.text_renderer(fig)
         boxes = []
+        by_id = {p.id: p for p in pairs}
         for label in [t for t in ax.texts if t.get_label().startswith("label of ")]:
-            assert label.get_text().endswith(pair_label(by_label(pairs, label.get_label()[9:])))  or (
-                label.get_text() == label.get_label()[9:]
-            )
+            pair = by_id[label.get_label().removeprefix("label of ")]
+            assert label.get_text() in (f"{pair.id}  {pair_label(pair)}", pair_label(pair), pair.id)
             extent = label.get_window_extent(renderer)
             frame = ax.get_window_extent(renderer)
             assert frame.x0 <= extent.x0 and extent.x1 <= frame.x1 and frame.y0 <= extent.y0 and extent.y1 <= frame.y1
@@ -335,18 +335,26 @@ def test_rectangle_overlap_test():
 )
 def test_no_text_is_cut_off_by_the_edge_of_the_figure(build):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.text import Text
 
     fig = build()
+    ax = fig.axes[0]
     with common.house_style():
         canvas = FigureCanvasAgg(fig)
         canvas.draw()
         renderer = canvas.get_renderer()
-        for text in fig.findobj(Text):
-            if text.get_visible() and text.get_text():
-                extent = text.get_window_extent(renderer)
-                assert fig.bbox.x0 - 0.5 <= extent.x0 and extent.x1 <= fig.bbox.x1 + 0.5, text.get_text()
-                assert fig.bbox.y0 - 0.5 <= extent.y0 and extent.y1 <= fig.bbox.y1 + 0.5, text.get_text()
+        extents = {
+            "x axis": ax.xaxis.get_tightbbox(renderer),
+            "y axis": ax.yaxis.get_tightbbox(renderer),
+            "title": ax.title.get_window_extent(renderer) if ax.title.get_text() else None,
+            "left title": ax._left_title.get_window_extent(renderer),  # noqa: SLF001 - titles sit left
+            "key": fig.legends[0].get_window_extent(renderer),
+        }
+        extents.update({f"text {t.get_text()!r}": t.get_window_extent(renderer) for t in ax.texts if t.get_text()})
+    for name, extent in extents.items():
+        if extent is None:
+            continue
+        assert fig.bbox.x0 - 0.5 <= extent.x0 and extent.x1 <= fig.bbox.x1 + 0.5, name
+        assert fig.bbox.y0 - 0.5 <= extent.y0 and extent.y1 <= fig.bbox.y1 + 0.5, name
 
 
 def test_single_star_chart_draws():

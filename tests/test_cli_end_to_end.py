@@ -1,0 +1,110 @@
+"""End to end on the demo project: weigh --json, build, new."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import pytest
+from click.testing import CliRunner
+
+from dossier.cli import cli
+from tests.conftest import DEMO
+
+EXPECTED = {  # the demo's fictional scenario (demo_project/systems/*/evidence.yaml, header comments)
+    ("alder-4", "AB"): "optical",
+    ("heron-1", "AB"): "bound",
+    ("heron-1", "Aa-Ab"): "undetermined",
+    ("heron-1", "AC"): "undetermined",
+    ("heron-1", "AD"): "optical",
+    ("wren-9", "AB"): "co-moving",
+}
+
+
+@pytest.fixture(scope="module")
+def weighed() -> dict:
+    result = CliRunner().invoke(cli, ["weigh", str(DEMO), "--json"])
+    assert result.exit_code == 0, result.output
+    return json.loads(result.output)
+
+
+def test_weigh_json_is_the_documented_format(weighed):
+    assert weighed["format"] == "dossier-weigh" and weighed["format_version"] == 1
+    assert [s["id"] for s in weighed["systems"]] == ["alder-4", "heron-1", "wren-9"]
+    for system in weighed["systems"]:
+        for a in system["assessments"]:
+            assert set(a) == {"rule", "rule_version", "title", "subject", "subject_kind", "question", "outcome",
+                              "strength", "probability", "statistic", "quantities", "explanation", "method",
+                              "sources"}
+        for v in system["verdicts"]:
+            assert set(v) == {"pair", "status", "probability", "p_physical", "p_bound_given_physical",
+                              "log10_odds_physical", "summary", "reasons_for", "reasons_against", "missing"}
+
+
+def test_weigh_reaches_the_demo_scenario(weighed):
+    got = {(s["id"], v["pair"]): v["status"] for s in weighed["systems"] for v in s["verdicts"]}
+    assert got == EXPECTED
+
+
+def test_the_disagreeing_parallax_sources_of_the_demo_are_named(weighed):
+    heron = next(s for s in weighed["systems"] if s["id"] == "heron-1")
+    dist = next(a for a in heron["assessments"] if a["rule"] == "distance" and a["subject"] == "A")
+    assert "The sources disagree" in dist["explanation"] and "sky-survey-2 deviates most" in dist["explanation"]
+
+
+def test_weigh_json_is_byte_stable():
+    runs = [CliRunner().invoke(cli, ["weigh", str(DEMO), "--json"]).output for _ in range(2)]
+    assert runs[0] == runs[1]
+
+
+def test_weigh_one_system_in_the_terminal():
+    result = CliRunner().invoke(cli, ["weigh", str(DEMO), "--system", "wren-9"], env={"COLUMNS": "120"})
+    assert result.exit_code == 0
+    assert "Pair AB (A + B): CO-MOVING" in result.output
+    assert "proper-motion-orbit" in result.output
+    assert "alder-4" not in result.output
+
+
+def test_weigh_unknown_system_is_a_clear_error():
+    result = CliRunner().invoke(cli, ["weigh", str(DEMO), "--system", "wren-8"])
+    assert result.exit_code == 1
+    assert result.output.splitlines()[0] == "systems/wren-8: there is no system 'wren-8'. Fix: did you mean 'wren-9'?"
+
+
+def test_new_scaffolds_a_valid_system_and_never_overwrites(demo_copy):
+    runner = CliRunner()
+    result = runner.invoke(cli, ["new", str(demo_copy), "kite-2"])
+    assert result.exit_code == 0
+    path = demo_copy / "systems/kite-2/evidence.yaml"
+    assert path.is_file()
+    assert runner.invoke(cli, ["check", str(demo_copy)]).exit_code == 0
+    before = path.read_text()
+    again = runner.invoke(cli, ["new", str(demo_copy), "kite-2"])
+    assert again.exit_code == 2 and "already exists; nothing was written" in again.output
+    assert path.read_text() == before
+
+
+def test_the_scaffolds_commented_examples_are_valid_when_uncommented(demo_copy):
+    # every example line, uncommented, must validate: the template cannot teach a wrong key
+    from dossier.scaffold import TEMPLATE
+    from dossier.schema.loader import _plain, _yaml
+    from dossier.schema.models import System
+
+    text = TEMPLATE.format(system_id="kite-3", title="t")
+    lines = []
+    for line in text.splitlines():
+        match = re.match(r"^(\s*)# (\s*(?:- |[a-z_]+:).*)$", line)  # a commented YAML line, not prose
+        lines.append(match.group(1) + match.group(2) if match else line)
+    uncommented = "\n".join(lines).replace("pairs: []", "pairs:")
+    data = _plain(_yaml().load(uncommented))
+    data["components"]["B"] = {}
+    data["components"]["C"] = {}
+    data["components"]["Aa"] = {}
+    data["components"]["Ab"] = {}
+    System.model_validate(data)
+
+
+def test_new_refuses_a_bad_id(demo_copy):
+    result = CliRunner().invoke(cli, ["new", str(demo_copy), "bad id!"])
+    assert result.exit_code == 2
+    assert "not a valid system id" in result.output

@@ -1,0 +1,97 @@
+"""The static site: pages per system with their verdicts, byte-identical rebuilds, safe notes."""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from dossier.cli import cli
+from dossier.errors import DossierError
+from dossier.site import build, write_site
+from tests.conftest import DEMO, edit
+from tests.test_cli_end_to_end import EXPECTED
+
+
+@pytest.fixture(scope="module")
+def site(tmp_path_factory) -> Path:
+    out = tmp_path_factory.mktemp("site") / "public"
+    result = CliRunner().invoke(cli, ["build", str(DEMO), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert result.output.strip().endswith(str(out.resolve() / "index.html"))
+    return out
+
+
+def test_every_system_page_shows_each_pairs_verdict(site):
+    for (system, pair), status in EXPECTED.items():
+        page = (site / "systems" / system / "index.html").read_text()
+        block = page[page.index(f'id="pair-{pair}"'):]
+        block = block[: block.index("</article>")]
+        assert f'<span class="status status-{status}">{status}</span>' in block
+
+
+def test_index_lists_every_system_with_its_statuses(site):
+    index = (site / "index.html").read_text()
+    for system in ("alder-4", "heron-1", "wren-9"):
+        assert f'href="systems/{system}/index.html"' in index
+    assert 'data-status="bound optical undetermined"' in index
+
+
+def test_pages_carry_figures_sources_and_assumptions(site):
+    page = (site / "systems/heron-1/index.html").read_text()
+    assert page.count("<svg") == 2
+    assert "heron-1: sky chart" in page and "heron-1: parallaxes" in page
+    assert "https://doi.org/10.99999/demo.survey.2" in page
+    assert "<code>length_scale_kpc</code></td><td>1.35" in page
+    assert "Against this verdict" in page
+
+
+def test_markdown_notes_render_and_raw_html_is_escaped(demo_copy, tmp_path):
+    path = demo_copy / "systems/wren-9/evidence.yaml"
+    edit(path, "  stars. The motions agree", "  stars. <script>alert(1)</script> The **motions** agree")
+    out = tmp_path / "out"
+    build(demo_copy, out)
+    page = (out / "systems/wren-9/index.html").read_text()
+    assert "<script>alert(1)</script>" not in page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "<strong>motions</strong>" in page
+
+
+def test_rebuild_is_byte_identical(tmp_path):
+    def digest(root: Path) -> dict[str, str]:
+        return {str(p.relative_to(root)): hashlib.sha256(p.read_bytes()).hexdigest()
+                for p in sorted(root.rglob("*")) if p.is_file()}
+
+    build(DEMO, tmp_path / "one")
+    build(DEMO, tmp_path / "two")
+    assert digest(tmp_path / "one") == digest(tmp_path / "two")
+
+
+def test_links_inside_the_site_resolve(site):
+    for page in site.rglob("*.html"):
+        for link in re.findall(r'(?:href|src)="([^"#:]+)"', page.read_text()):
+            target = page.parent / link
+            assert target.exists(), f"{page}: {link}"
+
+
+def test_a_foreign_folder_is_never_overwritten(tmp_path):
+    out = tmp_path / "mine"
+    out.mkdir()
+    (out / "thesis.tex").write_text("precious")
+    with pytest.raises(DossierError, match="not empty and was not built by dossier"):
+        write_site(out, {"index.html": "x"})
+    assert (out / "thesis.tex").read_text() == "precious"
+
+
+def test_a_failed_build_leaves_the_previous_site_in_place(demo_copy, tmp_path):
+    out = tmp_path / "out"
+    build(demo_copy, out)
+    before = (out / "index.html").read_text()
+    edit(demo_copy / "systems/wren-9/evidence.yaml", "id: wren-9", "id: wren-8")
+    result = CliRunner().invoke(cli, ["build", str(demo_copy), "--out", str(out)])
+    assert result.exit_code == 1
+    assert (out / "index.html").read_text() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out", "project"]
