@@ -123,6 +123,51 @@ def new(project: Path, system_id: str) -> None:
     click.echo(f"created {path} — fill it in, then run: dossier check {project}")
 
 
+from dossier.cli_log import log as _log; cli.add_command(_log)
+
+
+@cli.command(name="plan")
+@project_arg
+@click.option("--site", "site_text", required=True, metavar="LAT,LON,HEIGHT",
+              help="Observing site: degrees north, degrees east, metres.")
+@click.option("--date", "date_text", metavar="YYYY-MM-DD", help="Night starting on this date (default: today, UTC).")
+@click.option("--min-altitude", type=float, default=30.0, show_default=True, help="Lowest useful altitude (deg).")
+@click.option("--limit", type=int, default=20, show_default=True, help="How many pairs to list.")
+def plan_command(project: Path, site_text: str, date_text: str | None, min_altitude: float, limit: int) -> None:
+    """List the pairs most in need of a measure, with their observable window that night."""
+    import datetime as dt
+
+    from rich.console import Console
+    from rich.table import Table
+
+    from dossier.engine import weigh_project
+    from dossier.errors import DossierError
+    from dossier.plan import Site, plan
+    from dossier.schema.loader import load_project
+
+    site = Site.parse(site_text)
+    try:
+        date = dt.date.fromisoformat(date_text) if date_text else dt.datetime.now(dt.timezone.utc).date()
+    except ValueError:
+        raise DossierError(f"--date '{date_text}' is not a date. Fix: write YYYY-MM-DD.") from None
+    targets = plan(weigh_project(load_project(project)), site, date, min_altitude_deg=min_altitude, limit=limit)
+    console = Console()
+    table = Table(title=f"Night of {date.isoformat()} at {site.latitude_deg:+.3f}°, {site.longitude_deg:+.3f}°, "
+                  f"{site.height_m:.0f} m (times UTC)", expand=True)
+    for col in ("System", "Pair", "ρ (″)", "Why now", "Window (altitude > %g°, Sun < −12°)" % min_altitude):
+        table.add_column(col)
+    for t in targets:
+        w = t.window
+        if w is not None and w.observable:
+            window = f"{w.start:%H:%M}–{w.end:%H:%M}, highest {w.max_altitude_deg:.0f}°"
+        else:
+            window = "not observable in a dark sky tonight"
+        table.add_row(t.system, t.pair, "—" if t.rho_arcsec is None else f"{t.rho_arcsec:.2f}", t.reason, window)
+    console.print(table)
+    console.print("Only targets in a dark sky, far from the Sun, are proposed: looking at the Sun through any "
+                  "optical aid blinds.", style="dim")
+
+
 def main() -> None:
     cli(prog_name="dossier")
 

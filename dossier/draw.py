@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 from dossier.astro import angles
 from dossier.engine import SystemResult
 
@@ -92,3 +94,72 @@ def draw_system(result: SystemResult) -> list[Figure]:
             parallax_chart(rows, title=f"{result.system.id}: parallaxes"),
         ))
     return figures
+
+
+def _log_models(result: SystemResult, pair_id: str, log) -> list[tuple[str, str, np.ndarray, np.ndarray, np.ndarray]]:
+    """(label, kind, t, x, y) of the model paths drawn over a pair's log: straight line, quadratic, orbit."""
+    from dossier.astro import orbit as orbits
+
+    lo, hi = float(log.t.min()), float(log.t.max())
+    pad = 0.05 * max(hi - lo, 1.0)
+    t = np.linspace(lo - pad, hi + pad, 400)
+    models = []
+    if log.linear is not None:
+        x, y, _, _ = log.linear.predict(t)
+        models.append(("straight line (as an optical pair moves)", "linear", t, x, y))
+    curved = log.curvature is not None and log.curvature.p_value < 1e-3
+    if log.quadratic is not None and curved:
+        x, y, _, _ = log.quadratic.predict(t)
+        models.append(("quadratic (curved path)", "quadratic", t, x, y))
+    orbit = result.facts.visual_orbit(pair_id)
+    if orbit is not None:
+        el = (orbit.period_years, orbit.periastron_time.value, orbit.eccentricity.value, orbit.semimajor_axis.value,
+              orbit.inclination.value, orbit.node.value, orbit.periastron_argument.value)
+        t_orbit = np.linspace(lo - pad, max(hi + pad, lo - pad + el[0]), 800)  # the data span, and a whole period
+        x, y = orbits.ephemeris_xy(t_orbit, *el)
+        models.append((f"published orbit ({orbit.ref})", "orbit", t_orbit, x, y))
+    fitted = next((a for a in result.for_subject(pair_id) if a.rule == "orbit-fit" and a.quantity("orbit_P")), None)
+    if fitted is not None:
+        el = tuple(fitted.quantity(f"orbit_{k}").value for k in ("P", "T", "e", "a", "i", "node", "omega"))
+        t_orbit = np.linspace(lo - pad, max(hi + pad, lo - pad + el[0]), 800)
+        x, y = orbits.ephemeris_xy(t_orbit, *el)
+        models.append(("orbit fitted to the log", "orbit", t_orbit, x, y))
+    return models
+
+
+def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
+    """The apparent relative orbit and θ, ρ against time of one pair's observing log."""
+    from dossier.astro import reduction
+    from dossier.figures.motion_chart import ModelCurve, MotionSeries, motion_chart
+    from dossier.figures.orbit_chart import ChartCurve, ChartMeasure, orbit_chart
+
+    log = result.facts.logs.get(pair_id)
+    if log is None or len(log.t) < 2:
+        return []
+    pair = result.facts.pair_ids[pair_id]
+    measures = [ChartMeasure(float(t), float(x), float(y), bool(f), r)
+                for t, x, y, f, r in zip(log.t, log.x, log.y, log.flagged, log.reasons)]
+    models = _log_models(result, pair_id, log)
+    curves = [ChartCurve(label, tuple(map(float, x)), tuple(map(float, y)), kind) for label, kind, _, x, y in models]
+    series = MotionSeries(tuple(map(float, log.t)), tuple(map(float, log.theta)), tuple(map(float, log.rho)),
+                          tuple(map(float, log.sigma_theta)), tuple(map(float, log.sigma_rho)),
+                          tuple(bool(f) for f in log.flagged))
+    model_curves = []
+    for label, kind, t, x, y in models:
+        rho, theta = reduction.to_polar(x, y)
+        model_curves.append(ModelCurve(label, tuple(map(float, t)), tuple(map(float, theta)),
+                                       tuple(map(float, rho)), kind))
+    residual = next((c.label for c in model_curves if c.kind == "orbit"), None) or \
+        next((c.label for c in model_curves if c.kind == "linear"), None)
+    first, second = pair.members
+    return [
+        Figure(f"orbit-{pair_id}", f"Relative path of {pair_id}",
+               f"Measures of {second} relative to {first} (θ precessed to J2000), coloured by epoch, east to the "
+               "left; flagged measures are open and listed in the log table; curves are the models weighed.",
+               orbit_chart(measures, curves, title=f"{result.system.id} {pair_id}: relative path", primary=first,
+                           secondary=second)),
+        Figure(f"motion-{pair_id}", f"θ and ρ of {pair_id} against time",
+               "Position angle and separation of every measure with its 1σ uncertainty (stated, else the method's "
+               f"default), and residuals O−C against the {residual or 'model'}.",
+               motion_chart(series, model_curves, title=f"{result.system.id} {pair_id}: θ and ρ", residual_model=residual)),
+    ]

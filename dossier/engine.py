@@ -41,11 +41,11 @@ def _run(rule: Rule, facts: SystemFacts, subject: str, settings: Settings) -> As
         return rule.assessment(subject, "error", f"The rule failed: {type(exc).__name__}: {exc}.")
 
 
-def weigh_system(system: System, settings: Settings) -> SystemResult:
+def weigh_system(system: System, settings: Settings, log: tuple = ()) -> SystemResult:
     from dossier.rules import distance
 
     length_scale = rule_settings(settings.rules, distance.RULE).length_scale_kpc  # type: ignore[attr-defined]
-    facts = SystemFacts(system, settings, length_scale_kpc=length_scale)
+    facts = SystemFacts(system, settings, length_scale_kpc=length_scale, log=log)
     rules = enabled_rules(settings)
     assessments: list[Assessment] = []
     for rule in rules:
@@ -60,4 +60,5 @@ def weigh_system(system: System, settings: Settings) -> SystemResult:
 
 
 def weigh_project(project: Project) -> dict[str, SystemResult]:
-    return {sid: weigh_system(system, project.settings) for sid, system in project.systems.items()}
+    return {sid: weigh_system(system, project.settings, project.logs.get(sid, ()))
+            for sid, system in project.systems.items()}

@@ -16,7 +16,7 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 from dossier import __version__
-from dossier.draw import Figure, draw_system
+from dossier.draw import Figure, draw_log, draw_system
 from dossier.engine import SystemResult, weigh_project
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
@@ -98,7 +98,17 @@ def _cited(project: Project, result: SystemResult) -> list[tuple[str, object]]:
     return [(ref, project.references[ref]) for ref in sorted(ids) if ref in project.references]
 
 
-def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]]) -> dict[str, str]:
+@dataclass(frozen=True)
+class LogSection:
+    """One pair's observing log on a system page."""
+
+    pair: str
+    log: object
+    figures: list[Figure]
+
+
+def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]],
+                logs: dict[str, list[LogSection]] | None = None) -> dict[str, str]:
     """Relative path -> page text."""
     info = project.settings.project
     common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
@@ -118,6 +128,7 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             notes_html=render_markdown(result.system.notes),
             note_html=lambda text: render_markdown(text or ""),
             references=_cited(project, result),
+            logs=(logs or {}).get(sid, []),
             assumptions=_assumptions(project),
             **common,
         )
@@ -201,7 +212,9 @@ def build(project_dir: Path | str, out_dir: Path | str) -> Path:
     project = load_project(Path(project_dir))
     results = weigh_project(project)
     figures = {sid: draw_system(result) for sid, result in results.items()}
-    pages = render_site(project, results, figures)
+    logs = {sid: [LogSection(pid, log, draw_log(result, pid)) for pid, log in result.facts.logs.items()]
+            for sid, result in results.items()}
+    pages = render_site(project, results, figures, logs)
     write_site(Path(out_dir), pages)
     return Path(out_dir).resolve() / "index.html"
 

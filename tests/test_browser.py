@@ -53,7 +53,8 @@ def test_system_page_renders_its_figures(browser, tmp_path):
     index = build(DEMO, tmp_path / "site")
     page = browser.new_page(viewport={"width": 1200, "height": 900})
     page.goto((index.parent / "systems/heron-1/index.html").as_uri())
-    assert page.locator("figure svg").count() == 2
+    assert page.locator("#figures figure svg").count() == 2
+    assert page.locator("#log figure svg").count() == 4  # relative path and θ, ρ for AB and Ba-Bb
     box = page.locator("#figure-sky-chart svg").bounding_box()
     assert box is not None and box["width"] > 300 and box["height"] > 200
-    assert page.locator(".verdict").count() == 4
+    assert page.locator(".verdict").count() == 5

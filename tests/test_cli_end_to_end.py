@@ -16,6 +16,7 @@ EXPECTED = {  # the demo's fictional scenario (demo_project/systems/*/evidence.y
     ("heron-1", "AB"): "bound",
     ("heron-1", "Aa-Ab"): "undetermined",
     ("heron-1", "AC"): "undetermined",
+    ("heron-1", "Ba-Bb"): "bound",
     ("heron-1", "AD"): "optical",
     ("wren-9", "AB"): "co-moving",
 }

@@ -42,7 +42,7 @@ def test_index_lists_every_system_with_its_statuses(site):
 
 def test_pages_carry_figures_sources_and_assumptions(site):
     page = (site / "systems/heron-1/index.html").read_text()
-    assert page.count("<svg") == 2
+    assert page.count("<svg") == 6  # sky chart, parallaxes, and two figures for each of the two logged pairs
     assert "heron-1: sky chart" in page and "heron-1: parallaxes" in page
     assert "https://doi.org/10.99999/demo.survey.2" in page
     assert "<code>length_scale_kpc</code></td><td>1.35" in page
@@ -95,3 +95,16 @@ def test_a_failed_build_leaves_the_previous_site_in_place(demo_copy, tmp_path):
     assert result.exit_code == 1
     assert (out / "index.html").read_text() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out", "project"]
+
+
+def test_observing_log_section_shows_figures_measures_and_flags(site):
+    page = (site / "systems/heron-1/index.html").read_text()
+    section = page[page.index('id="log-Ba-Bb"'):]
+    section = section[: section.index("</section>")]
+    assert 'id="figure-orbit-Ba-Bb"' in section and 'id="figure-motion-Ba-Bb"' in section
+    assert section.count("<tr") - 1 == 42  # every measure of the log, flagged ones included
+    assert section.count('class="flagged"') == 1
+    assert "from the published orbit" in section
+    # the optical pair's page shows its straight-line motion
+    alder = (site / "systems/alder-4/index.html").read_text()
+    assert 'id="log-AB"' in alder and "straight line (as an optical pair moves)" in alder

@@ -19,7 +19,7 @@ import contextlib
 import hashlib
 import io
 import re
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from typing import TYPE_CHECKING
 from xml.sax.saxutils import escape, quoteattr
 
@@ -270,14 +270,146 @@ def arrange(
         ax.set_position([x0 / width_in, y0 / height_in, (x1 - x0) / width_in, (y1 - y0) / height_in])
 
     if legend is not None:
-        if legend_side == "right":
-            anchor, loc = ((x1 + overhang + GAP_IN) / width_in, y1 / height_in), "upper left"
-        else:
-            # Centred on the axes, but never past the edges of the figure.
-            centre = min(max(0.5 * (x0 + x1), PAD_IN + legend_w / 2), width_in - PAD_IN - legend_w / 2)
-            anchor, loc = (centre / width_in, (y0 - bottom - GAP_IN / 2) / height_in), "upper center"
-        legend.set_bbox_to_anchor(anchor, transform=fig.transFigure)
-        legend.set_loc(loc)
+        _place_legend(fig, legend, legend_side, (x0, y0, x1, y1), bottom=bottom, overhang=overhang)
+
+
+def arrange_column(
+    fig: Figure,
+    axes: Sequence[Axes],
+    *,
+    weights: Sequence[float],
+    gaps_in: Sequence[float],
+    title: Text | None = None,
+    legend: Legend | None = None,
+    unit_in: float | None = None,
+    min_height_in: float = 0.0,
+    max_height_in: float = float("inf"),
+) -> None:
+    """Lay out a column of axes, top to bottom, tightly around their text, in one measured pass.
+
+    The column counterpart of :func:`arrange`: all axes share one left and
+    one right edge (so that their x axes line up), the title sits over the
+    first, the legend goes below the last, and the boxes get heights in
+    proportion to ``weights`` once the text is measured. Where the x tick
+    labels of an axes would touch (a narrow axes, long numbers), it gets
+    fewer ticks.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure, with its axes, labels, title and legend already made.
+    axes : sequence of matplotlib.axes.Axes
+        The axes, top to bottom.
+    weights : sequence of float
+        Relative heights of the axes boxes, one per axes.
+    gaps_in : sequence of float
+        Space between each axes and the next, inches, one fewer than the
+        axes; added to the room taken by the upper one's x axis (its tick
+        labels, if shown) and by whatever the lower one's y axis shows above
+        its box.
+    title : matplotlib.text.Text, optional
+        The title of the first axes, to leave room for.
+    legend : matplotlib.legend.Legend, optional
+        A figure legend, centred below the column.
+    unit_in : float, optional
+        Height of one unit of weight, inches. When given, the figure's height
+        is set to fit the column and its text exactly (within
+        ``min_height_in`` and ``max_height_in``, the boxes stretching or
+        shrinking to suit); otherwise the figure keeps its height.
+    min_height_in, max_height_in : float
+        Bounds on the figure's height when ``unit_in`` is given, inches.
+    """
+    import matplotlib
+
+    if len(weights) != len(axes) or len(gaps_in) != len(axes) - 1 or not axes:
+        raise ValueError(
+            f"arrange_column got {len(axes)} axes, {len(weights)} weights and {len(gaps_in)} gaps. "
+            "Fix: pass one weight per axes and one gap fewer."
+        )
+    renderer = text_renderer(fig)
+    dpi = fig.dpi
+    width_in, height_in = (float(v) for v in fig.get_size_inches())
+    legend_h = legend.get_window_extent(renderer).height / dpi if legend is not None else 0.0
+    for _ in range(2):  # tick labels can change with the size of the axes: measure twice
+        left = overhang = 0.0
+        below: list[float] = []  # room under each box taken by its x axis, inches
+        above: list[float] = []  # room over each box taken by its y axis, inches
+        for ax in axes:
+            box = ax.get_window_extent(renderer)
+            yaxis = ax.yaxis.get_tightbbox(renderer)
+            xaxis = ax.xaxis.get_tightbbox(renderer)
+            left = max(left, *((box.x0 - a.x0) / dpi for a in (yaxis, xaxis, box) if a is not None))
+            overhang = max(overhang, (xaxis.x1 - box.x1) / dpi if xaxis is not None else 0.0)
+            below.append(max(0.0, (box.y0 - xaxis.y0) / dpi) if xaxis is not None else 0.0)
+            above.append(max(0.0, (yaxis.y1 - box.y1) / dpi) if yaxis is not None else 0.0)
+        top = above[0]
+        if title is not None and title.get_text():
+            pad = matplotlib.rcParams["axes.titlepad"] / 72.0
+            top = max(top, title.get_window_extent(renderer).height / dpi + pad)
+        bottom = below[-1]
+        gaps = [below[i] + above[i + 1] + gaps_in[i] for i in range(len(axes) - 1)]
+
+        x0 = PAD_IN + left
+        x1 = width_in - PAD_IN - overhang
+        y_bottom = PAD_IN + bottom + (legend_h + GAP_IN / 2 if legend is not None else 0.0)
+        if unit_in is not None:
+            wanted = y_bottom + sum(gaps) + unit_in * sum(weights) + top + PAD_IN
+            height_in = min(max_height_in, max(min_height_in, wanted))
+            fig.set_size_inches(width_in, height_in)
+        y_top = height_in - PAD_IN - top
+        unit = max(0.0, y_top - y_bottom - sum(gaps)) / sum(weights)
+        y1 = y_top
+        for i, ax in enumerate(axes):
+            y0 = y1 - unit * weights[i]
+            ax.set_position([x0 / width_in, y0 / height_in, (x1 - x0) / width_in, (y1 - y0) / height_in])
+            y1 = y0 - (gaps[i] if i < len(gaps) else 0.0)
+            _thin_x_ticks(ax, renderer)
+
+    if legend is not None:
+        _place_legend(fig, legend, "below", (x0, y_bottom, x1, y_top), bottom=bottom, overhang=overhang)
+
+
+def _thin_x_ticks(ax: Axes, renderer: RendererBase) -> None:
+    """Give an axes fewer x ticks until no two of its tick labels are closer than half an em."""
+    from matplotlib.ticker import MaxNLocator
+
+    tick = ax.xaxis.get_major_ticks()[0]
+    if not tick.label1.get_visible():
+        return
+    font = tick.label1.get_fontproperties()
+    room = 0.5 * font.get_size_in_points() * ax.figure.dpi / 72.0
+    low, high = sorted(ax.get_xlim())
+    for _ in range(10):
+        locs = [x for x in ax.xaxis.get_major_locator()() if low <= x <= high]
+        texts = ax.xaxis.get_major_formatter().format_ticks(locs)
+        centres = ax.transData.transform([(x, 0.0) for x in locs])[:, 0]
+        halves = [renderer.get_text_width_height_descent(t, font, ismath=False)[0] / 2 for t in texts]
+        if len(locs) <= 2 or all(
+            centres[k + 1] - halves[k + 1] - (centres[k] + halves[k]) >= room for k in range(len(locs) - 1)
+        ):
+            return
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=len(locs) - 2, steps=[1, 2, 2.5, 5, 10]))
+
+
+def _place_legend(
+    fig: Figure, legend: Legend, side: str, box: tuple[float, float, float, float], *, bottom: float, overhang: float
+) -> None:
+    """Anchor a figure legend right of (top-aligned) or below (centred) the box ``(x0, y0, x1, y1)``, inches.
+
+    ``bottom`` is the room the x axis takes under the box, ``overhang`` how
+    far its tick labels reach past its right edge, inches.
+    """
+    width_in, height_in = (float(v) for v in fig.get_size_inches())
+    legend_w = legend.get_window_extent(text_renderer(fig)).width / fig.dpi
+    x0, y0, x1, y1 = box
+    if side == "right":
+        anchor, loc = ((x1 + overhang + GAP_IN) / width_in, y1 / height_in), "upper left"
+    else:
+        # Centred on the axes, but never past the edges of the figure.
+        centre = min(max(0.5 * (x0 + x1), PAD_IN + legend_w / 2), width_in - PAD_IN - legend_w / 2)
+        anchor, loc = (centre / width_in, (y0 - bottom - GAP_IN / 2) / height_in), "upper center"
+    legend.set_bbox_to_anchor(anchor, transform=fig.transFigure)
+    legend.set_loc(loc)
 
 
 def text_renderer(fig: Figure) -> RendererBase:

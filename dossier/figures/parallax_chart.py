@@ -1,12 +1,24 @@
 """Parallax chart: every measured parallax of every component, and how they combine.
 
-A forest plot, one band per component from top to bottom: each source is a
-point with its 1-sigma error bar on its own line, named by its reference id
-(and epoch) on the left. The combined value is a vertical line across the
-component's band with a shaded 1-sigma band; when the error was inflated
-for excess scatter, the inflated band is drawn lighter behind the formal
-one, so both show. A source flagged as discordant gets an open red diamond
-and the word "discordant" beside its name.
+A forest plot with one panel per component, stacked from top to bottom:
+each source is a point with its 1-sigma error bar on its own line, named by
+its reference id (and epoch) on the left. The combined value is a vertical
+line across the panel with a shaded 1-sigma band; when the error was
+inflated for excess scatter, the inflated band is drawn lighter behind the
+formal one, so both show. A source flagged as discordant gets an open red
+diamond and the word "discordant" beside its name.
+
+Each panel's x range is fitted to its own error bars and bands, so that a
+background star far off in parallax does not squash the scatter between the
+sources of the others. Components whose padded ranges overlap (the two stars
+of a physical pair, say) are put in one group that shares a single x range,
+so that their agreement, or not, shows at a glance: the group's range covers
+every error bar and band of its members, padded on each side by
+:data:`PAD_FRACTION` of its span, or by :data:`PAD_SIGMAS` times the smallest
+error drawn if that is more (so that a lone measurement does not fill its
+panel from edge to edge). Consecutive panels of one group sit close together
+and only the lowest shows the tick labels; a new group starts after a gap,
+with its own tick labels.
 """
 
 from __future__ import annotations
@@ -25,10 +37,20 @@ if TYPE_CHECKING:  # pragma: no cover - typing only
 
 _SLOT_IN = 0.26
 """Height of one line of the chart (a source or a component heading), inches."""
-_FRAME_IN = 1.45
-"""Height taken by title, x axis and key, inches."""
+_JOIN_IN = 0.07
+"""Space between two panels of one group (x range shared, no tick labels between), inches."""
+_BREAK_IN = 0.16
+"""Space between two groups, over the tick labels of the upper one, inches."""
 _MIN_HEIGHT_IN = 2.6
 _MAX_HEIGHT_IN = 9.0
+PAD_FRACTION = 0.1
+"""Padding of an x range on each side, as a fraction of its span..."""
+PAD_SIGMAS = 0.5
+"""... but at least this many times the smallest 1-sigma error drawn in it."""
+_HEADING_ROOM = 0.6
+"""Room over the heading line (y = 0) of a panel, in lines."""
+_FOOT_ROOM = 0.5
+"""Room under the last source of a panel, in lines."""
 
 
 @dataclass(frozen=True)
@@ -125,60 +147,173 @@ def parallax_chart(rows: list[ParallaxRow], *, title: str) -> str:
 def build_parallax_chart(rows: Sequence[ParallaxRow], *, title: str) -> Figure:
     """Build the parallax chart as a matplotlib Figure (see :func:`parallax_chart`).
 
-    Each source is one errorbar container in ``ax.containers`` labelled
-    ``"<component> <ref>"``; the combined lines are labelled
+    ``fig.axes[i]`` is the panel of ``rows[i]``, labelled with the component
+    id. In it each source is one errorbar container in ``ax.containers``
+    labelled ``"<component> <ref>"``; the combined line is labelled
     ``"combined <component>"`` and the shaded bands ``"formal <component>"``
     and ``"inflated <component>"``, so that tests can read back the data.
+    Panels of one group share their x axis (``ax.get_shared_x_axes()``).
     """
     _check(rows)
-    slots = sum(1 + max(1, len(row.sources)) for row in rows)
-    height = min(_MAX_HEIGHT_IN, max(_MIN_HEIGHT_IN, _FRAME_IN + _SLOT_IN * slots))
+    groups = _x_groups(rows)
+    joins = [groups[i] == groups[i + 1] for i in range(len(rows) - 1)]
+    weights = [_HEADING_ROOM + max(1, len(row.sources)) + _FOOT_ROOM for row in rows]
+    spans = _group_spans(rows, groups)
 
     with common.house_style():
-        fig = common.new_figure(common.DEFAULT_SIZE_IN[0], height)
-        ax = fig.add_subplot()
-        ax.grid(True, axis="x")
-        ticks: list[float] = []
-        tick_labels: list[str] = []
-        flagged: list[int] = []
+        fig = common.new_figure(*common.DEFAULT_SIZE_IN)  # arrange_column sets the height
         seen = _Seen()
-        y = 0.0
+        axes: list[Axes] = []
+        first_of_group: dict[int, Axes] = {}
         for index, row in enumerate(rows):
-            heading = y
-            first, last = y + 1.0, y + max(1, len(row.sources))
-            if index % 2 == 1:
-                ax.axhspan(heading - 0.5, last + 0.5, color=common.BAND_BACKGROUND, zorder=0, linewidth=0)
-            _draw_combined(ax, row, first - 0.45, last + 0.45, seen)
-            for offset, source in enumerate(row.sources):
-                slot = first + offset
-                discordant = source.ref == row.discordant_ref
-                _draw_source(ax, row.component, source, slot, discordant, seen)
-                ticks.append(slot)
-                tick_labels.append(source_label(source, discordant=discordant))
-                if discordant:
-                    flagged.append(len(ticks) - 1)
-            if not row.sources:
-                ax.text(0.5, first, "no parallax measured", transform=ax.get_yaxis_transform(),
-                        ha="center", va="center", fontsize=8.5, color=common.INK_MUTED, style="italic")
-            name = ax.text(0.01, heading, row.component, transform=ax.get_yaxis_transform(), ha="left",
-                           va="center_baseline", fontsize=9.5, fontweight="bold", color=common.INK)
-            summary = _summary(row)
-            if summary:
-                ax.annotate(summary, xy=(1.0, 0.0), xycoords=name, xytext=(6, 0), textcoords="offset points",
-                            ha="left", va="bottom", fontsize=9, color=common.INK)
-            y = last + 1.0
+            ax = fig.add_subplot(label=row.component)
+            axes.append(ax)
+            group = groups[index]
+            if group in first_of_group:
+                ax.sharex(first_of_group[group])
+            else:
+                first_of_group[group] = ax
+            _draw_panel(ax, row, seen)
+            low, high = _padded(spans[group])
+            ax.set_xlim(low, high)
+            if low < 0.0 < high:
+                ax.axvline(0.0, color=common.INK_MUTED, linewidth=0.8, zorder=0.5)
+            if spans[group] is None:  # nothing to draw: an x scale would mean nothing
+                ax.tick_params(axis="x", bottom=False, labelbottom=False)
+            # No offset text ("+2.5e1"): the ticks carry the full parallax.
+            ax.ticklabel_format(axis="x", useOffset=False)
+            if index < len(joins) and joins[index]:
+                # The panel below shares this x range and shows the tick labels.
+                ax.tick_params(axis="x", bottom=False, labelbottom=False)
 
-        ax.set_ylim(y - 0.5, -0.6)  # first component at the top
-        ax.set_yticks(ticks, tick_labels)
-        ax.tick_params(axis="y", length=0)
-        for position in flagged:
-            ax.get_yticklabels()[position].set_color(common.DISCORDANT)
-        _set_xlimits(ax, rows)
-        ax.set_xlabel("Parallax (mas)")
-        title_text = ax.set_title(title)
+        axes[-1].set_xlabel("Parallax (mas)")
+        title_text = axes[0].set_title(title)
         legend = _legend(fig, seen)
-        common.arrange(fig, ax, title=title_text, legend=legend, legend_side="below")
+        common.arrange_column(fig, axes, weights=weights, title=title_text, legend=legend,
+                              gaps_in=[_JOIN_IN if join else _BREAK_IN for join in joins],
+                              unit_in=_SLOT_IN, min_height_in=_MIN_HEIGHT_IN, max_height_in=_MAX_HEIGHT_IN)
     return fig
+
+
+def _x_groups(rows: Sequence[ParallaxRow]) -> list[int]:
+    """Group the components whose padded x ranges overlap, to share one x range.
+
+    Overlap is transitive here (if A overlaps B and B overlaps C, all three
+    share one range). A component with nothing to draw joins the group of
+    the panel above it (or below, for the first), so that it costs no room
+    of its own.
+
+    Parameters
+    ----------
+    rows : sequence of ParallaxRow
+        The components, top to bottom.
+
+    Returns
+    -------
+    list of int
+        Group number of each row.
+    """
+    padded = {i: _padded(span) for i, row in enumerate(rows) if (span := _span(row)) is not None}
+    found: dict[int, int] = {}
+    reach, count = -math.inf, -1
+    for i in sorted(padded, key=lambda i: padded[i][0]):  # sweep along x: a gap starts a new group
+        low, high = padded[i]
+        if low > reach:
+            count += 1
+        found[i] = count
+        reach = max(reach, high)
+    groups: list[int | None] = []
+    for i in range(len(rows)):
+        groups.append(found.get(i, groups[-1] if groups else None))
+    first = next((g for g in groups if g is not None), 0)
+    return [first if g is None else g for g in groups]
+
+
+_NO_DATA = (0.0, 1.0)
+"""x range of a group with nothing to draw."""
+
+
+@dataclass(frozen=True)
+class _Span:
+    """The x extent of some error bars and bands, and the smallest error among them, mas."""
+
+    low: float
+    high: float
+    sigma: float
+
+    def union(self, other: _Span | None) -> _Span:
+        if other is None:
+            return self
+        return _Span(min(self.low, other.low), max(self.high, other.high), min(self.sigma, other.sigma))
+
+
+def _span(row: ParallaxRow) -> _Span | None:
+    """The x extent of a row's error bars and bands; ``None`` if it has none."""
+    drawn = [(s.parallax, s.error) for s in row.sources]
+    if row.combined is not None:
+        drawn += [(row.combined, e) for e in (row.combined_error, row.inflated_error) if e is not None]
+        if row.combined_error is None and row.inflated_error is None:
+            drawn.append((row.combined, 0.0))
+    if not drawn:
+        return None
+    return _Span(min(v - e for v, e in drawn), max(v + e for v, e in drawn), min(e for _, e in drawn))
+
+
+def _padded(span: _Span | None) -> tuple[float, float]:
+    """An x range about a span, padded on each side, mas.
+
+    The margin is :data:`PAD_FRACTION` of the span or :data:`PAD_SIGMAS`
+    times its smallest error, whichever is more; a range of zero width (a
+    single value without an error) gets 10% of the value, and at least
+    0.1 mas, on each side.
+    """
+    if span is None:
+        return _NO_DATA
+    low, high = span.low, span.high
+    margin = max(PAD_FRACTION * (high - low), PAD_SIGMAS * span.sigma)
+    if margin <= 0.0:
+        margin = max(0.1, 0.1 * abs(high))
+    return low - margin, high + margin
+
+
+def _group_spans(rows: Sequence[ParallaxRow], groups: Sequence[int]) -> dict[int, _Span | None]:
+    """The union of the spans of each group's members."""
+    spans: dict[int, _Span | None] = {}
+    for row, group in zip(rows, groups):
+        span, known = _span(row), spans.get(group)
+        spans[group] = span.union(known) if span is not None else known
+    return spans
+
+
+def _draw_panel(ax: Axes, row: ParallaxRow, seen: _Seen) -> None:
+    """One component: its heading (y = 0), its sources (y = 1, 2, ...), its combined value."""
+    ax.grid(True, axis="x")
+    last = max(1, len(row.sources))
+    _draw_combined(ax, row, 1.0 - 0.45, last + 0.45, seen)
+    ticks: list[float] = []
+    labels: list[str] = []
+    flagged: list[int] = []
+    for offset, source in enumerate(row.sources):
+        discordant = source.ref == row.discordant_ref
+        _draw_source(ax, row.component, source, 1.0 + offset, discordant, seen)
+        ticks.append(1.0 + offset)
+        labels.append(source_label(source, discordant=discordant))
+        if discordant:
+            flagged.append(offset)
+    if not row.sources:
+        ax.text(0.5, 1.0, "no parallax measured", transform=ax.get_yaxis_transform(),
+                ha="center", va="center", fontsize=8.5, color=common.INK_MUTED, style="italic")
+    name = ax.text(0.01, 0.0, row.component, transform=ax.get_yaxis_transform(), ha="left",
+                   va="center_baseline", fontsize=9.5, fontweight="bold", color=common.INK)
+    summary = _summary(row)
+    if summary:
+        ax.annotate(summary, xy=(1.0, 0.0), xycoords=name, xytext=(6, 0), textcoords="offset points",
+                    ha="left", va="bottom", fontsize=9, color=common.INK)
+    ax.set_ylim(last + _FOOT_ROOM, -_HEADING_ROOM)  # heading at the top
+    ax.set_yticks(ticks, labels)
+    ax.tick_params(axis="y", length=0)
+    for position in flagged:
+        ax.get_yticklabels()[position].set_color(common.DISCORDANT)
 
 
 class _Seen:
@@ -258,24 +393,6 @@ def _draw_source(ax: Axes, component: str, source: ParallaxSource, slot: float, 
         seen.measurement = True
     ax.errorbar([source.parallax], [slot], xerr=[source.error], elinewidth=1.3, capsize=2.5, capthick=1.3,
                 zorder=3, label=f"{component} {source.ref}", **style)
-
-
-def _set_xlimits(ax: Axes, rows: Sequence[ParallaxRow]) -> None:
-    """Limits about every error bar and band, with a margin; a zero line if it falls inside."""
-    low, high = math.inf, -math.inf
-    for row in rows:
-        for s in row.sources:
-            low, high = min(low, s.parallax - s.error), max(high, s.parallax + s.error)
-        if row.combined is not None:
-            half = max(row.combined_error or 0.0, row.inflated_error or 0.0)
-            low, high = min(low, row.combined - half), max(high, row.combined + half)
-    if not math.isfinite(low):
-        ax.set_xlim(0.0, 1.0)
-        return
-    margin = 0.08 * (high - low) if high > low else max(0.1, 0.1 * abs(high))
-    ax.set_xlim(low - margin, high + margin)
-    if low - margin < 0.0 < high + margin:
-        ax.axvline(0.0, color=common.INK_MUTED, linewidth=0.8, zorder=0.5)
 
 
 def _legend(fig: Figure, seen: _Seen) -> Legend | None:

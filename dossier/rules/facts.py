@@ -19,6 +19,7 @@ Choices (see ``docs/decisions.md``):
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from dataclasses import dataclass
 from functools import cached_property
@@ -32,13 +33,38 @@ from dossier.schema.settings import Settings
 
 def julian_year(epoch: str) -> float:
     """Julian epoch (years) of an epoch string of the evidence model."""
-    if epoch.startswith("J"):
-        return float(epoch[1:])
-    from astropy.time import Time
+    return float(julian_years([epoch])[0])
 
-    if epoch.startswith("B"):
-        return float(Time(float(epoch[1:]), format="byear", scale="tt").jyear)
-    return float(Time(epoch, scale="utc").jyear)
+
+def julian_years(epochs: list[str]) -> np.ndarray:
+    """Julian epochs (years) of epoch strings: ``J2016.0``, ``B1950.0`` or ISO dates/times (UTC).
+
+    Besselian epochs and calendar dates are converted with ERFA, the IAU SOFA
+    routines that astropy.time itself calls (``epb2jd``, ``dtf2d``, ``epj``),
+    vectorised over the list and without astropy.time's import cost.
+    """
+    out = np.empty(len(epochs))
+    b_idx, b_val, d_idx, d_parts = [], [], [], []
+    for k, e in enumerate(epochs):
+        if e.startswith("J"):
+            out[k] = float(e[1:])
+        elif e.startswith("B"):
+            b_idx.append(k)
+            b_val.append(float(e[1:]))
+        else:
+            when = dt.datetime.fromisoformat(e)
+            d_idx.append(k)
+            d_parts.append((when.year, when.month, when.day, when.hour, when.minute,
+                            when.second + when.microsecond / 1e6))
+    if b_idx or d_idx:
+        import erfa
+
+        if b_idx:
+            out[b_idx] = erfa.epj(*erfa.epb2jd(np.array(b_val)))
+        if d_idx:
+            cols = [np.array(c) for c in zip(*d_parts)]
+            out[d_idx] = erfa.epj(*erfa.dtf2d("UTC", *cols))
+    return out
 
 
 @dataclass(frozen=True)
@@ -127,11 +153,36 @@ def _best(entries: list[Astrometry], key) -> Astrometry | None:
 class SystemFacts:
     """Derived inputs for the rules of one system."""
 
-    def __init__(self, system: System, settings: Settings, length_scale_kpc: float = 1.35):
+    def __init__(self, system: System, settings: Settings, length_scale_kpc: float = 1.35, log: tuple = ()):
         self.system = system
         self.settings = settings
         self.length_scale_kpc = length_scale_kpc
         self.pair_ids = {p.id: p for p in system.pairs}
+        self.log = tuple(log)
+
+    @cached_property
+    def logs(self) -> dict[str, PairLog]:
+        """Reduced observing log of every pair that has measures."""
+        by_pair: dict[str, list] = {}
+        for m in self.log:
+            by_pair.setdefault(m.pair, []).append(m)
+        pos = self.system.position
+        return {pid: reduce_log(ms, pos.ra, pos.dec, self.settings.log, self._orbit_model(pid))
+                for pid, ms in sorted(by_pair.items()) if pid in self.pair_ids}
+
+    def visual_orbit(self, pair_id: str):
+        """The first published visual orbit of a pair with all Campbell elements, or None."""
+        return next((o for o in self.system.orbits if o.pair == pair_id and o.is_visual), None)
+
+    def _orbit_model(self, pair_id: str):
+        orbit = self.visual_orbit(pair_id)
+        if orbit is None:
+            return None
+        from dossier.astro import orbit as orbits
+
+        el = (orbit.period_years, orbit.periastron_time.value, orbit.eccentricity.value, orbit.semimajor_axis.value,
+              orbit.inclination.value, orbit.node.value, orbit.periastron_argument.value)
+        return lambda t: orbits.ephemeris_xy(t, *el)
 
     # -- components ---------------------------------------------------------
 
@@ -251,6 +302,12 @@ class SystemFacts:
                 rho, theta = float(r), float(t)
                 how = f"from the positions of {first} and {second} at epoch J{a.position.jyear:.2f}"
                 refs = (a.position.ref, b.position.ref)
+            elif pair.id in self.logs and (~self.logs[pair.id].flagged).any():
+                log = self.logs[pair.id]
+                k = int(np.flatnonzero(~log.flagged)[-1])
+                rho, theta = float(log.rho[k]), float(log.theta[k])
+                how = f"from the latest measure in the observing log ({log.measures[k].epoch})"
+                refs = ("observing log",)
             elif pair.measures:
                 latest = max(pair.measures, key=lambda m: julian_year(m.epoch))
                 rho, theta = latest.rho.value, latest.theta.value
@@ -261,9 +318,16 @@ class SystemFacts:
 
     def pair_parallax(self, pair_id: str) -> tuple[float, float] | None:
         """Parallax (mas) of a pair: the inverse-variance mean of its members' (the best estimate if
-        physical), or the first member's when the two disagree by more than 3σ."""
+        physical), or the first member's when the two disagree by more than 3σ; a pair whose members
+        have none takes that of the component it resolves (its ``parent``)."""
         f = self.pairs[pair_id]
         values = [self.stars[m].parallax for m in (f.first, f.second) if self.stars[m].parallax is not None]
+        parent = self.pair_ids[pair_id].parent
+        if not values and parent is not None:
+            # a close pair has no parallax of its own: it shares that of the component it resolves
+            star = self.stars.get(self.representative(parent))
+            if star is not None and star.parallax is not None:
+                values = [star.parallax]
         if not values:
             return None
         if len(values) == 2 and abs(values[0].mean - values[1].mean) > 3 * math.hypot(
@@ -291,3 +355,105 @@ class SystemFacts:
             for row, pid in enumerate(known):
                 out[pid] = (1000.0 * float(q[row, 0]), 1000.0 * float(q[row, 1]), 1000.0 * float(q[row, 2]))
         return out
+
+
+# ----------------------------------------------------------------------------
+# The observing log, reduced once per pair
+
+
+@dataclass(frozen=True)
+class PairLog:
+    """A pair's observing log, reduced: every measure kept, flagged ones with their reason.
+
+    Per measure (log order): ``t`` (Julian years), ``theta`` (deg, precessed to
+    J2000), ``rho`` (″), their 1σ uncertainties (given, else the method's
+    default), offsets ``x`` (north) and ``y`` (east) with ``sx``, ``sy``, and
+    ``flagged``/``reasons`` from a robust fit. Per night (unflagged measures
+    only): weighted means ``mt, mx, my, msx, msy`` and counts ``mn``. Fits of
+    the nightly means: ``linear`` and ``quadratic`` (None when too few
+    nights), and their ``curvature`` test.
+    """
+
+    measures: tuple
+    t: np.ndarray
+    theta: np.ndarray
+    rho: np.ndarray
+    sigma_theta: np.ndarray
+    sigma_rho: np.ndarray
+    x: np.ndarray
+    y: np.ndarray
+    sx: np.ndarray
+    sy: np.ndarray
+    flagged: np.ndarray
+    reasons: tuple
+    mt: np.ndarray
+    mx: np.ndarray
+    my: np.ndarray
+    msx: np.ndarray
+    msy: np.ndarray
+    mn: np.ndarray
+    linear: object | None
+    quadratic: object | None
+    curvature: object | None
+
+    @property
+    def span_years(self) -> float:
+        return float(self.mt.max() - self.mt.min()) if self.mt.size else 0.0
+
+
+def reduce_log(measures: list, ra: float, dec: float, log_settings, model=None) -> PairLog:
+    """Reduce one pair's measures (see :class:`PairLog`).
+
+    ``model(t) -> (x, y)``, when given (a published orbit's ephemeris), is what
+    outliers are flagged against; otherwise a robust quadratic (or straight)
+    fit of the measures is.
+    """
+    from dossier.astro import reduction
+
+    t_all = julian_years([m.epoch for m in measures])
+    order = np.argsort(t_all, kind="stable")
+    ms = [measures[k] for k in order]
+    t = t_all[order]
+    theta_raw = np.array([m.theta for m in ms])
+    of_date = np.array([m.equinox == "date" for m in ms])
+    theta = np.where(of_date, reduction.precess_theta(theta_raw, ra, dec, t, 2000.0), theta_raw)
+    rho = np.array([m.rho for m in ms])
+    defaults = dict(reduction.DEFAULT_METHOD_ERRORS)
+    defaults.update({k: reduction.MethodErrors(v.theta_deg, v.rho_arcsec, v.rho_fraction, v.aperture_term)
+                     for k, v in log_settings.method_errors.items()})
+    st = np.empty(len(ms))
+    sr = np.empty(len(ms))
+    for k, m in enumerate(ms):  # per measure: methods differ row by row
+        a, b = reduction.measure_sigmas(m.rho, np.nan if m.theta_error is None else m.theta_error,
+                                        np.nan if m.rho_error is None else m.rho_error, m.method,
+                                        np.nan if m.aperture_cm is None else m.aperture_cm, defaults)
+        st[k], sr[k] = float(a), float(b)
+    x, y, sx, sy = reduction.to_offsets(rho, theta, sr, st)
+    flagged = np.zeros(len(ms), dtype=bool)
+    reasons: list[str | None] = [None] * len(ms)
+    n_epochs = len(np.unique(np.round(t, 3)))
+    degree = 2 if n_epochs >= 6 else 1 if n_epochs >= 3 else 0
+    if model is not None:
+        mx_, my_ = model(t)
+        flags, why = reduction.flag_outliers(x - mx_, y - my_, sx, sy, threshold=log_settings.outlier_threshold)
+        flagged = np.asarray(flags, dtype=bool)
+        reasons = [r.replace("fitted motion", "published orbit") if f else None for r, f in zip(why, flagged)]
+    elif degree:
+        robust = reduction.fit_motion_robust(t, x, y, sx, sy, degree, threshold=log_settings.outlier_threshold)
+        flagged = np.asarray(robust.flags, dtype=bool)
+        reasons = [r if f else None for r, f in zip(robust.reasons, flagged)]
+    keep = ~flagged
+    window = log_settings.group_window_days / 365.25
+    if keep.any():
+        mt, mx, my, msx, msy, mn, _ = reduction.group_means(t[keep], x[keep], y[keep], sx[keep], sy[keep], window)
+    else:
+        mt = mx = my = msx = msy = mn = np.array([])
+    linear = quadratic = curvature = None
+    if len(mt) >= 3:
+        linear = reduction.fit_motion(mt, mx, my, msx, msy, 1)
+        if len(mt) >= 5:
+            quadratic = reduction.fit_motion(mt, mx, my, msx, msy, 2, t0=linear.t0)
+            curvature = reduction.curvature_test(linear, quadratic)
+    return PairLog(tuple(ms), t, theta, rho, st, sr, x, y, sx, sy, flagged, tuple(reasons),
+                   np.asarray(mt), np.asarray(mx), np.asarray(my), np.asarray(msx), np.asarray(msy), np.asarray(mn),
+                   linear, quadratic, curvature)

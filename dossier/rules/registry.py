@@ -11,9 +11,12 @@ from dossier.rules import (
     chance_alignment,
     common_motion,
     distance,
+    orbit_consistency,
+    orbit_fit,
     parallax_agreement,
     proper_motion_orbit,
     radial_velocity,
+    relative_motion,
     separation_period,
 )
 from dossier.rules.base import Rule, RuleSettings
@@ -25,6 +28,9 @@ RULES: tuple[Rule, ...] = (
     chance_alignment.RULE,
     proper_motion_orbit.RULE,
     radial_velocity.RULE,
+    relative_motion.RULE,
+    orbit_consistency.RULE,
+    orbit_fit.RULE,
     separation_period.RULE,
 )
 

@@ -37,6 +37,7 @@ class Project:
     settings: Settings
     references: dict[str, Reference]
     systems: dict[str, System] = field(default_factory=dict)
+    logs: dict[str, tuple] = field(default_factory=dict)
 
     def evidence_path(self, system_id: str) -> Path:
         return self.root / SYSTEMS_DIR / system_id / EVIDENCE_FILE
@@ -505,11 +506,19 @@ def load_project(root: Path | str, only: str | None = None) -> Project:
             raise ProblemsFound([Problem(f"{SYSTEMS_DIR}/{only}", 0, 0, "", f"there is no system '{only}'.",
                                          _suggest(only, set(folders), f"choose one of: {', '.join(folders)}"))])
         folders = [only]
+    logs: dict[str, tuple] = {}
     for folder in folders:
         system, system_problems = load_system(root, folder, refs)
         problems += system_problems
         if system is not None:
             systems[folder] = system
+            from dossier.logbook import read_log
+            from dossier.schema.log import LOG_FILE
+
+            measures, log_problems = read_log(root / SYSTEMS_DIR / folder / LOG_FILE, f"{SYSTEMS_DIR}/{folder}/{LOG_FILE}",
+                                              pairs={p.id for p in system.pairs}, refs=set(refs))
+            problems += log_problems
+            logs[folder] = tuple(measures)
     if settings is not None:
         for i, entry in enumerate(settings.field_density):
             ref = entry.per_square_degree.ref or entry.ref
@@ -520,4 +529,4 @@ def load_project(root: Path | str, only: str | None = None) -> Project:
     if problems:
         raise ProblemsFound(problems)
     assert settings is not None
-    return Project(root=root, settings=settings, references=refs, systems=systems)
+    return Project(root=root, settings=settings, references=refs, systems=systems, logs=logs)

@@ -333,15 +333,38 @@ class NonDetection(Model):
 
 
 class PublishedOrbit(Model):
-    """Orbital elements published for a pair (slot; rules come later)."""
+    """Orbital elements published for a pair.
+
+    Visual orbits use the Campbell elements P, T, e, a, i, Ω, ω;
+    spectroscopic orbits P, T, e, ω, K. Give what the source gives.
+    """
 
     pair: Identifier
     kind: Literal["visual", "spectroscopic", "astrometric", "combined"]
-    period: Measured = Field(description="Period [d]", json_schema_extra=_unit("d"))
-    eccentricity: Measured | None = measured("", "Eccentricity")
-    semimajor_axis: Measured | None = measured("arcsec", "Angular semimajor axis")
-    semi_amplitude: Measured | None = measured("km/s", "Velocity semi-amplitude")
+    period: Measured = Field(description="Period, in period_unit [d or yr]", json_schema_extra={"unit": "d or yr"})
+    period_unit: Literal["d", "yr"] = Field(default="d", description="Unit of the period: days or Julian years.")
+    periastron_time: Measured | None = measured("yr", "Time of periastron passage T, as a Julian year")
+    eccentricity: Measured | None = measured("", "Eccentricity e")
+    semimajor_axis: Measured | None = measured("arcsec", "Angular semimajor axis a")
+    inclination: Measured | None = measured("deg", "Inclination i (< 90° when θ increases with time)")
+    node: Measured | None = measured("deg", "Position angle of the ascending node Ω")
+    periastron_argument: Measured | None = measured("deg", "Argument of periastron ω")
+    semi_amplitude: Measured | None = measured("km/s", "Velocity semi-amplitude K")
     ref: Identifier
+
+    @property
+    def period_years(self) -> float:
+        return self.period.value / 365.25 if self.period_unit == "d" else self.period.value
+
+    @property
+    def period_years_error(self) -> float:
+        return self.period.uncertainty / 365.25 if self.period_unit == "d" else self.period.uncertainty
+
+    @property
+    def is_visual(self) -> bool:
+        needed = (self.periastron_time, self.eccentricity, self.semimajor_axis, self.inclination, self.node,
+                  self.periastron_argument)
+        return self.kind in ("visual", "combined") and all(x is not None for x in needed)
 
 
 class Neighbour(Model):

@@ -12,6 +12,7 @@ from typing import Any
 
 from pydantic import Field
 
+from dossier.schema.log import Method
 from dossier.schema.models import FieldDensity, Model
 
 
@@ -50,6 +51,30 @@ class VerdictSettings(Model):
     max_strength: float = Field(default=4.0, gt=0, description="Cap on |log10 odds| from any one assessment.")
 
 
+class MethodErrorSetting(Model):
+    """Typical uncertainties of one method of measure: σρ = hypot(rho_arcsec, rho_fraction × ρ)."""
+
+    theta_deg: float = Field(gt=0)
+    rho_arcsec: float = Field(ge=0)
+    rho_fraction: float = Field(ge=0)
+    aperture_term: bool = Field(default=False, description="Inflate near the resolution limit 11.6″/D(cm).")
+
+
+class LogSettings(Model):
+    """How the observing log is reduced (see dossier/astro/reduction.py)."""
+
+    group_window_days: float = Field(
+        default=1.0, gt=0, description="Measures of one pair within this span are averaged into one (a night)."
+    )
+    outlier_threshold: float = Field(
+        default=3.5, gt=0, description="Robust normalised residual above which a measure is flagged (never deleted)."
+    )
+    method_errors: dict[Method, MethodErrorSetting] = Field(
+        default_factory=dict,
+        description="Per-method uncertainties for measures that give none; overrides the built-in defaults.",
+    )
+
+
 class Settings(Model):
     """The whole ``dossier.toml``."""
 
@@ -58,6 +83,7 @@ class Settings(Model):
         default_factory=list, description="Default field-star density table for systems that give none."
     )
     verdict: VerdictSettings = Field(default_factory=VerdictSettings)
+    log: LogSettings = Field(default_factory=LogSettings)
     rules: dict[str, dict[str, Any]] = Field(
         default_factory=dict, description="Per-rule settings tables, keyed by rule id; 'enabled = false' switches a rule off."
     )

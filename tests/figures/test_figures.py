@@ -87,6 +87,33 @@ ROWS = [
     ParallaxRow("C", [ParallaxSource("survey-3", 1.21, 0.12, "J2017.5")], None, None, None, None),
 ]
 
+# The parallaxes of the demo system heron-1 (demo_project/systems/heron-1/
+# evidence.yaml), with the combination the engine derives from them: A and B
+# of a physical pair near 8.5 mas, and a background star D at 1.2 mas.
+HERON = [
+    ParallaxRow(
+        "A",
+        [
+            ParallaxSource("sky-survey-1", 7.95, 0.62, "J1991.25"),
+            ParallaxSource("sky-survey-2", 8.71, 0.06, "J2015.5"),
+            ParallaxSource("sky-survey-3", 8.44, 0.04, "J2016.0"),
+        ],
+        8.5214,
+        0.0332,
+        0.0906,
+        "sky-survey-2",
+    ),
+    ParallaxRow(
+        "B",
+        [ParallaxSource("sky-survey-3", 8.47, 0.04, "J2016.0"), ParallaxSource("sky-survey-2", 8.52, 0.07, "J2015.5")],
+        8.4823,
+        0.0347,
+        0.0347,
+        None,
+    ),
+    ParallaxRow("D", [ParallaxSource("sky-survey-3", 1.21, 0.06, "J2016.0")], 1.21, 0.06, 0.06, None),
+]
+
 
 def svg_texts(svg: str) -> list[str]:
     """The visible text of an SVG: every line of every <text> element."""
@@ -330,26 +357,28 @@ def test_rectangle_overlap_test():
         lambda: build_sky_chart(STARS, PAIRS, title="A title of some length for the sky chart"),
         lambda: build_sky_chart(WIDE_STARS, WIDE_PAIRS, title="t"),
         lambda: build_parallax_chart(ROWS, title="A title of some length for the parallax chart"),
+        lambda: build_parallax_chart(HERON, title="heron-1: parallaxes"),
     ],
-    ids=["sky", "sky-symlog", "parallax"],
+    ids=["sky", "sky-symlog", "parallax", "parallax-heron"],
 )
 def test_no_text_is_cut_off_by_the_edge_of_the_figure(build):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     fig = build()
-    ax = fig.axes[0]
     with common.house_style():
         canvas = FigureCanvasAgg(fig)
         canvas.draw()
         renderer = canvas.get_renderer()
-        extents = {
-            "x axis": ax.xaxis.get_tightbbox(renderer),
-            "y axis": ax.yaxis.get_tightbbox(renderer),
-            "title": ax.title.get_window_extent(renderer) if ax.title.get_text() else None,
-            "left title": ax._left_title.get_window_extent(renderer),  # noqa: SLF001 - titles sit left
-            "key": fig.legends[0].get_window_extent(renderer),
-        }
-        extents.update({f"text {t.get_text()!r}": t.get_window_extent(renderer) for t in ax.texts if t.get_text()})
+        extents = {"key": fig.legends[0].get_window_extent(renderer)}
+        for ax in fig.axes:  # every panel of the parallax chart
+            name = ax.get_label()
+            extents.update({
+                f"x axis {name}": ax.xaxis.get_tightbbox(renderer),
+                f"y axis {name}": ax.yaxis.get_tightbbox(renderer),
+                f"title {name}": ax.title.get_window_extent(renderer) if ax.title.get_text() else None,
+                f"left title {name}": ax._left_title.get_window_extent(renderer),  # noqa: SLF001 - titles sit left
+            })
+            extents.update({f"text {t.get_text()!r}": t.get_window_extent(renderer) for t in ax.texts if t.get_text()})
     for name, extent in extents.items():
         if extent is None:
             continue
@@ -374,12 +403,32 @@ def test_parallax_chart_shows_every_source_and_component():
     assert "paper-4 · discordant" in texts
 
 
+def panel(fig, component):
+    """The axes of one component in a parallax chart."""
+    return by_label(fig.axes, component)
+
+
+def test_parallax_chart_has_one_panel_per_component_top_to_bottom():
+    fig = build_parallax_chart(ROWS, title="t")
+    assert [ax.get_label() for ax in fig.axes] == [row.component for row in ROWS]
+    boxes = [ax.get_position() for ax in fig.axes]
+    for upper, lower in zip(boxes, boxes[1:]):
+        assert lower.y1 < upper.y0  # stacked, without overlap
+        assert (lower.x0, lower.x1) == pytest.approx((upper.x0, upper.x1))  # one column: x axes line up
+    # Every line of the chart is as tall in every panel: heights follow the
+    # number of sources (plus 1.1 lines of room for the heading and foot).
+    per_line = [box.height / (len(row.sources) + 1.1) for box, row in zip(boxes, ROWS)]
+    assert per_line == pytest.approx([per_line[0]] * len(ROWS), rel=1e-9)
+    assert fig.axes[-1].get_xlabel() == "Parallax (mas)"
+    assert [ax.get_xlabel() for ax in fig.axes[:-1]] == ["", ""]
+
+
 def test_parallax_chart_plots_each_measurement_with_its_error():
-    ax = build_parallax_chart(ROWS, title="t").axes[0]
-    assert ax.get_xlabel() == "Parallax (mas)"
-    assert len(ax.containers) == sum(len(row.sources) for row in ROWS)
-    slots = []
+    fig = build_parallax_chart(ROWS, title="t")
     for row in ROWS:
+        ax = panel(fig, row.component)
+        assert len(ax.containers) == len(row.sources)
+        slots = []
         for source in row.sources:
             container = by_label(ax.containers, f"{row.component} {source.ref}")
             data_line, _caps, (bars,) = container.lines
@@ -388,38 +437,147 @@ def test_parallax_chart_plots_each_measurement_with_its_error():
             assert (x0, x1) == pytest.approx((source.parallax - source.error, source.parallax + source.error))
             assert y0 == y1 == data_line.get_ydata()[0]
             slots.append(y0)
-    # Components (and their sources) run from top to bottom.
-    assert ax.yaxis_inverted()
-    assert slots == sorted(slots)
+        # Sources run from top to bottom, in the order given.
+        assert ax.yaxis_inverted()
+        assert slots == sorted(slots)
+        assert [t.get_text() for t in ax.get_yticklabels()] == [
+            source_label(s, discordant=s.ref == row.discordant_ref) for s in row.sources
+        ]
+
+
+def test_each_panel_fits_its_group_and_overlapping_components_share_one_range():
+    # The padding rule of dossier/figures/parallax_chart.py (module
+    # docstring): a group's range covers every error bar and band of its
+    # members, padded on each side by 10% of its span or half its smallest
+    # 1-sigma error, whichever is more. By hand from ROWS:
+    #   A: 3.62 - 0.35 = 3.27 to 4.10 + 0.09 = 4.19; padded 3.178 to 4.282;
+    #   B: 4.31 - 0.08 = 4.23 to 5.40 + 0.30 = 5.70; padded 4.083 to 5.847;
+    #   A and B overlap: one group, 3.27 to 5.70, padded by 0.243;
+    #   C: 1.21 -+ 0.12 = 1.09 to 1.33, padded by max(0.024, 0.06) = 0.06.
+    fig = build_parallax_chart(ROWS, title="t")
+    a, b, c = (panel(fig, k) for k in "ABC")
+    assert a.get_xlim() == pytest.approx((3.27 - 0.243, 5.70 + 0.243), abs=1e-12)
+    assert b.get_xlim() == pytest.approx(a.get_xlim(), abs=1e-12)
+    assert c.get_xlim() == pytest.approx((1.09 - 0.06, 1.33 + 0.06), abs=1e-12)
+    assert a.get_shared_x_axes().joined(a, b)
+    assert not a.get_shared_x_axes().joined(a, c)
+    # A's panel sits right on top of B's, which shows the tick labels for both.
+    assert not any(t.get_visible() for t in a.get_xticklabels())
+    assert all(t.get_visible() for t in b.get_xticklabels())
+    assert all(t.get_visible() for t in c.get_xticklabels())
+
+
+def test_a_background_star_no_longer_hides_the_scatter_of_the_others():
+    # heron-1, the case that asked for panels: A and B near 8.5 mas, D at
+    # 1.2 mas. Same padding rule as above: A and B span 7.33 (7.95 - 0.62)
+    # to 8.77 (8.71 + 0.06), padded by 0.144; D spans 1.15 to 1.27, padded
+    # by max(0.012, 0.06 / 2) = 0.03.
+    fig = build_parallax_chart(HERON, title="t")
+    a, b, d = (panel(fig, k) for k in "ABD")
+    assert a.get_xlim() == b.get_xlim() == pytest.approx((7.186, 8.914), abs=1e-12)
+    assert d.get_xlim() == pytest.approx((1.12, 1.30), abs=1e-12)
+    # A's two precise sources (8.44 and 8.71 mas) now lie 15% of the panel
+    # apart; on the one shared axis (about 0.5 to 9.4 mas) it was 3%.
+    left, right = a.get_xlim()
+    assert (8.71 - 8.44) / (right - left) > 0.15
+    # Everything the panels show lies inside them.
+    for row, ax in zip(HERON, fig.axes):
+        low, high = ax.get_xlim()
+        for source in row.sources:
+            assert low < source.parallax - source.error and source.parallax + source.error < high
+        half = max(row.combined_error, row.inflated_error)
+        assert low < row.combined - half and row.combined + half < high
+
+
+def test_components_share_a_range_even_when_not_neighbours():
+    a, d, b = HERON[0], HERON[2], HERON[1]
+    fig = build_parallax_chart([a, d, b], title="t")
+    top, middle, bottom = fig.axes
+    assert top.get_xlim() == bottom.get_xlim() != middle.get_xlim()
+    assert top.get_shared_x_axes().joined(top, bottom)
+    # Not next to each other: each panel shows its own tick labels.
+    assert all(t.get_visible() for ax in fig.axes for t in ax.get_xticklabels())
+
+
+def test_overlap_is_transitive_and_a_component_without_data_joins_its_neighbour():
+    def row(component, value):
+        return ParallaxRow(component, [ParallaxSource("s", value, 0.1, None)], None, None, None, None)
+
+    # The padding rule of dossier/figures/parallax_chart.py (module
+    # docstring), by hand: each row spans its value -+ 0.1, padded by
+    # max(10% of 0.2, 0.1 / 2) = 0.05 for the overlap test: A 1.00-1.30,
+    # B 1.20-1.50, C 1.40-1.70, F 3.00-3.30. A meets B, B meets C, A does
+    # not meet C. The group spans 1.05 to 1.65, padded by 10% of 0.6; F
+    # spans 3.05 to 3.25, padded by 0.05.
+    rows = [row("A", 1.15), row("B", 1.35), row("C", 1.55), ParallaxRow("E", [], None, None, None, None),
+            row("F", 3.15)]
+    fig = build_parallax_chart(rows, title="t")
+    a, b, c, e, f = fig.axes
+    assert a.get_xlim() == b.get_xlim() == c.get_xlim() == pytest.approx((0.99, 1.71), abs=1e-12)
+    assert e.get_xlim() == c.get_xlim()
+    assert f.get_xlim() == pytest.approx((3.00, 3.30), abs=1e-12)
+    assert "no parallax measured" in [t.get_text() for t in e.texts]
 
 
 def test_parallax_chart_shades_formal_and_inflated_errors():
-    ax = build_parallax_chart(ROWS, title="t").axes[0]
+    fig = build_parallax_chart(ROWS, title="t")
 
-    def x_extent(label):
-        band = by_label(ax.collections, label)
+    def x_extent(component, label):
+        band = by_label(panel(fig, component).collections, label)
         xs = np.concatenate([path.vertices[:, 0] for path in band.get_paths()])
         return xs.min(), xs.max()
 
-    assert x_extent("formal A") == pytest.approx((4.04 - 0.043, 4.04 + 0.043))
-    assert x_extent("inflated A") == pytest.approx((4.04 - 0.06, 4.04 + 0.06))
+    assert x_extent("A", "formal A") == pytest.approx((4.04 - 0.043, 4.04 + 0.043))
+    assert x_extent("A", "inflated A") == pytest.approx((4.04 - 0.06, 4.04 + 0.06))
     # B's inflated error equals its formal one: one band only.
-    assert x_extent("formal B") == pytest.approx((4.35 - 0.077, 4.35 + 0.077))
-    assert not [c for c in ax.collections if c.get_label() == "inflated B"]
-    (segment,) = by_label(ax.collections, "combined A").get_segments()
+    assert x_extent("B", "formal B") == pytest.approx((4.35 - 0.077, 4.35 + 0.077))
+    assert not [c for c in panel(fig, "B").collections if c.get_label() == "inflated B"]
+    (segment,) = by_label(panel(fig, "A").collections, "combined A").get_segments()
     assert segment[0][0] == segment[1][0] == pytest.approx(4.04)
+    # The line spans the component's three sources (lines 1 to 3), not its heading (line 0).
+    assert sorted([segment[0][1], segment[1][1]]) == pytest.approx([1 - 0.45, 3 + 0.45])
     # C has a single measurement and no combined value.
-    assert not [c for c in ax.collections if c.get_label().endswith(" C")]
+    assert not [c for c in panel(fig, "C").collections if c.get_label().endswith(" C")]
 
 
 def test_parallax_chart_marks_the_discordant_source():
-    ax = build_parallax_chart(ROWS, title="t").axes[0]
+    ax = panel(build_parallax_chart(ROWS, title="t"), "B")
     odd = by_label(ax.containers, "B paper-4").lines[0]
     usual = by_label(ax.containers, "B survey-2").lines[0]
     assert odd.get_marker() != usual.get_marker()
     assert odd.get_markeredgecolor() == common.DISCORDANT
     (label,) = [t for t in ax.get_yticklabels() if "discordant" in t.get_text()]
     assert label.get_text() == "paper-4 · discordant" and label.get_color() == common.DISCORDANT
+
+
+def test_parallax_chart_key_names_every_kind_of_mark():
+    fig = build_parallax_chart(HERON, title="t")
+    assert [t.get_text() for t in fig.legends[0].get_texts()] == [
+        "measured ± 1σ", "discordant", "combined", "formal ± 1σ", "inflated ± 1σ",
+    ]
+
+
+def test_panels_and_their_tick_labels_do_not_collide():
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    # A narrow axes (a long source name) and long tick numbers (a precise
+    # parallax): matplotlib's default ticks would run into each other.
+    tight = [ParallaxRow("A", [ParallaxSource("a-source-with-a-long-name-indeed", 1000.0123, 0.0021, "J2016.0")],
+                         None, None, None, None)]
+    for rows in (ROWS, HERON, tight):
+        fig = build_parallax_chart(rows, title="t")
+        with common.house_style():
+            canvas = FigureCanvasAgg(fig)
+            canvas.draw()
+            renderer = canvas.get_renderer()
+        frames = [ax.get_window_extent(renderer) for ax in fig.axes]
+        for i, ax in enumerate(fig.axes):
+            low, high = ax.get_xlim()
+            labels = sorted((t.get_window_extent(renderer) for t, x in zip(ax.get_xticklabels(), ax.get_xticks())
+                             if t.get_visible() and t.get_text() and low <= x <= high), key=lambda e: e.x0)
+            assert all(left.x1 < right.x0 for left, right in zip(labels, labels[1:])), ax.get_label()
+            below = frames[i + 1] if i + 1 < len(frames) else None
+            assert below is None or all(label.y0 > below.y1 for label in labels), ax.get_label()
 
 
 def test_parallax_chart_reports_an_unknown_discordant_ref_with_the_fix():

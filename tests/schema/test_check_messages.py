@@ -16,7 +16,7 @@ def run_check(project) -> tuple[int, list[str]]:
 def test_demo_project_is_clean():
     code, lines = run_check(DEMO)
     assert code == 0
-    assert lines == [f"{DEMO}: 3 system(s), 10 source(s): no problems found."]
+    assert lines == [f"{DEMO}: 3 system(s), 11 source(s): no problems found."]
 
 
 def test_every_problem_is_reported_with_its_position(demo_copy):
@@ -121,3 +121,15 @@ def test_json_format_lists_problems_for_machines(demo_copy):
         "message": "the system id 'wren-8' differs from its folder name 'wren-9'.",
         "fix": "write id: wren-9, or rename the folder.",
     }]
+
+
+def test_log_rows_are_checked_with_their_line_numbers(demo_copy):
+    log = demo_copy / "systems/alder-4/log.csv"
+    lines = log.read_text().splitlines()
+    lines[3] = lines[3].replace("AB,", "AC,", 1)
+    lines[5] = lines[5].replace(",filar-micrometer,", ",filar,", 1)
+    log.write_text("\n".join(lines) + "\n")
+    code, out = run_check(demo_copy)
+    assert code == 1
+    assert out[0] == "systems/alder-4/log.csv:4:0: pair: 'AC' is not a pair of this system. Fix: did you mean 'AB'?"
+    assert out[1].startswith("systems/alder-4/log.csv:6:0: method: 'filar' is not allowed here.")
