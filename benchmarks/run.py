@@ -38,6 +38,7 @@ def main() -> int:
             "check": ["check", str(DEMO)],
             "weigh": ["weigh", str(DEMO), "--json"],
             "build": ["build", str(DEMO), "--out", str(Path(tmp) / "site")],
+            "plan": ["plan", str(DEMO), "--site", "48.2,11.6,520", "--date", "2026-12-02"],
         }
         for name, args in cases.items():
             times = timed(args, repeat)

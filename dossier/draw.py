@@ -145,7 +145,10 @@ def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
                           tuple(map(float, log.sigma_theta)), tuple(map(float, log.sigma_rho)),
                           tuple(bool(f) for f in log.flagged))
     model_curves = []
+    has_orbit = any(kind == "orbit" for _, kind, _, _, _ in models)
     for label, kind, t, x, y in models:
+        if has_orbit and kind != "orbit":
+            continue  # beside an orbit, a line or parabola in θ and ρ only obscures the panels
         rho, theta = reduction.to_polar(x, y)
         model_curves.append(ModelCurve(label, tuple(map(float, t)), tuple(map(float, theta)),
                                        tuple(map(float, rho)), kind))

@@ -242,7 +242,7 @@ def build_motion_chart(
                 ax = axes[name]
                 ax.axhline(0.0, zorder=2, label="zero", **styles[model.label])
                 _measures(ax, t, values, errors, flagged)
-                _residual_limits(ax, values, errors)
+                _residual_limits(ax, values, errors, flagged)
 
         axes["theta"].set_ylabel("θ (°)")
         axes["rho"].set_ylabel("ρ (″)")
@@ -419,11 +419,19 @@ def _value_limits(
     ax.set_ylim(lo - _MARGIN * span, hi + _MARGIN * span)
 
 
-def _residual_limits(ax: Axes, values: np.ndarray, errors: np.ndarray) -> None:
-    """Symmetric limits about zero, so that the sign of a residual reads at a glance."""
+def _residual_limits(ax: Axes, values: np.ndarray, errors: np.ndarray, flagged: np.ndarray) -> None:
+    """Symmetric limits about zero, so that the sign of a residual reads at a glance.
+
+    The limits follow the measures that were kept: a flagged measure far off the model
+    (a quadrant slip of 180°, say) would otherwise flatten every other residual; its
+    residual is in the log table.
+    """
     from matplotlib.ticker import MaxNLocator
 
     reach = np.abs(values) + _bar(errors)
+    kept = ~np.asarray(flagged, dtype=bool)
+    if kept.any():
+        reach = reach[kept]
     reach = reach[np.isfinite(reach)]
     half = float(reach.max()) * (1.0 + 2 * _MARGIN) if reach.size and reach.max() > 0 else 1.0
     ax.set_ylim(-half, half)

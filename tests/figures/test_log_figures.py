@@ -436,3 +436,16 @@ def test_motion_chart_refuses_bad_input():
         "the measure columns differ in length (t 2, theta 1, rho 2, theta_err 2, rho_err 2, flagged 2). "
         "Fix: give one value per measure in every column (NaN for an unknown error)."
     )
+
+
+def test_residual_panels_scale_to_the_kept_measures():
+    # a flagged quadrant slip (θ off by 180°) must not flatten the other residuals; its residual is in
+    # the log table (common practice: plot limits follow the data that were used)
+    theta = list(SERIES.theta)
+    flagged = [False] * len(theta)
+    theta[2] = (theta[2] + 180.0) % 360.0
+    flagged[2] = True
+    series = MotionSeries(SERIES.t, tuple(theta), SERIES.rho, SERIES.theta_err, SERIES.rho_err, tuple(flagged))
+    fig = build_motion_chart(series, CURVES, title="t", residual_model="orbit fit")
+    low, high = panel(fig, "theta residual").get_ylim()
+    assert high < 90 and low > -90
