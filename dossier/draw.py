@@ -166,3 +166,54 @@ def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
                f"default), and residuals O−C against the {residual or 'model'}.",
                motion_chart(series, model_curves, title=f"{result.system.id} {pair_id}: θ and ρ", residual_model=residual)),
     ]
+
+
+def draw_spectroscopic(result: SystemResult, pair_id: str) -> list[Figure]:
+    """RV curve with the fitted orbit and residuals, and the periodogram, of one pair's primary."""
+    from dossier.astro import spectro
+    from dossier.figures.rv_chart import RVModel, RVPoint, periodogram_chart, rv_chart
+
+    orbit = result.facts.rv_orbits.get(pair_id)
+    if orbit is None:
+        return []
+    points = [RVPoint(float(t) - 2400000.0, float(v), float(s), inst or None, ref or None)
+              for t, v, s, inst, ref in zip(orbit.jd, orbit.v, orbit.sigma, orbit.instruments, orbit.refs)]
+    model = None
+    if orbit.fit is not None and orbit.detected:
+        f = orbit.fit
+        t = np.linspace(orbit.jd.min() - 0.05 * np.ptp(orbit.jd), orbit.jd.max() + 0.05 * np.ptp(orbit.jd), 1500)
+        v = spectro.rv_model(t, f.P, f.K, f.e, f.omega, f.T, f.gamma)
+        model = RVModel(tuple(map(float, t - 2400000.0)), tuple(map(float, v)), "fitted Keplerian orbit",
+                        float(f.P), float(f.T) - 2400000.0)
+    figures = [Figure(f"rv-{pair_id}", f"Radial velocities of {orbit.star}",
+                      f"Velocities of {orbit.star} against time and folded on the fitted period, with the Keplerian "
+                      "orbit and the residuals; markers by instrument and source.",
+                      rv_chart(points, model, title=f"{result.system.id} {orbit.star}: radial velocities"))]
+    if orbit.periodogram is not None:
+        freq, power, best, fap = orbit.periodogram
+        figures.append(Figure(f"periodogram-{pair_id}", f"Periodogram of {orbit.star}",
+                              "Lomb–Scargle power against trial period; the best period is marked with its "
+                              "false-alarm probability.",
+                              periodogram_chart(tuple(map(float, 1.0 / np.asarray(freq))), tuple(map(float, power)),
+                                                best_period=float(best),
+                                                fap=float(fap) if np.isfinite(fap) else None,
+                                                title=f"{result.system.id} {orbit.star}: periodogram")))
+    return figures
+
+
+def draw_detections(result: SystemResult) -> list[Figure]:
+    """Separation against contrast: every imaging claim and every search's sensitivity."""
+    from dossier.figures.detection_map import Detection, SearchLimit, detection_map
+
+    system = result.system
+    claims = [c for c in system.claims if c.rho is not None]
+    if not claims and not system.non_detections:
+        return []
+    detections = [Detection(c.companion, c.method, c.epoch, c.rho.value, c.delta_mag.value if c.delta_mag else None,
+                            c.band, c.ref) for c in claims]
+    limits = [SearchLimit(n.method, n.epoch, n.rho_range[0], n.rho_range[1], n.contrast, n.band, n.ref)
+              for n in system.non_detections]
+    return [Figure("detection-map", "Detections and searches",
+                   "Separation against magnitude difference: each claimed detection, and for each search that found "
+                   "nothing the region where a companion would have been seen.",
+                   detection_map(detections, limits, title=f"{system.id}: detections and searches"))]

@@ -41,15 +41,17 @@ def _run(rule: Rule, facts: SystemFacts, subject: str, settings: Settings) -> As
         return rule.assessment(subject, "error", f"The rule failed: {type(exc).__name__}: {exc}.")
 
 
-def weigh_system(system: System, settings: Settings, log: tuple = ()) -> SystemResult:
+def weigh_system(system: System, settings: Settings, log: tuple = (), cache=None) -> SystemResult:
     from dossier.rules import distance
 
     length_scale = rule_settings(settings.rules, distance.RULE).length_scale_kpc  # type: ignore[attr-defined]
-    facts = SystemFacts(system, settings, length_scale_kpc=length_scale, log=log)
+    facts = SystemFacts(system, settings, length_scale_kpc=length_scale, log=log, cache=cache)
     rules = enabled_rules(settings)
     assessments: list[Assessment] = []
     for rule in rules:
         subjects = list(system.components) if rule.subject == "component" else [p.id for p in system.pairs]
+        if rule.applies is not None:
+            subjects = [s for s in subjects if rule.applies(facts, s)]
         assessments += [_run(rule, facts, s, settings) for s in subjects]
     verdicts = {
         p.id: verdict_mod.combine(p.id, [a for a in assessments if a.subject == p.id and a.subject_kind == "pair"],
@@ -59,6 +61,10 @@ def weigh_system(system: System, settings: Settings, log: tuple = ()) -> SystemR
     return SystemResult(system, facts, tuple(assessments), verdicts)
 
 
-def weigh_project(project: Project) -> dict[str, SystemResult]:
-    return {sid: weigh_system(system, project.settings, project.logs.get(sid, ()))
+def weigh_project(project: Project, use_cache: bool = True) -> dict[str, SystemResult]:
+    """Weigh every system; expensive fits are cached under the project (see :mod:`dossier.cache`)."""
+    from dossier.cache import Cache
+
+    cache = Cache(project.root if use_cache else None)
+    return {sid: weigh_system(system, project.settings, project.logs.get(sid, ()), cache)
             for sid, system in project.systems.items()}

@@ -27,7 +27,7 @@ def fmt_number(value: float | None, digits: int = 4) -> str:
     size = abs(value)
     if 1e-3 <= size < 1e6:
         decimals = max(0, digits - 1 - int(math.floor(math.log10(size))))
-        return f"{value:,.{decimals}f}"
+        return f"{value:.{decimals}f}"
     return f"{value:.{digits - 1}e}"
 
 

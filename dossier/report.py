@@ -86,6 +86,16 @@ def print_results(console, results: dict[str, SystemResult]) -> None:
                 table.add_row(a.subject, f"{plx.value:.3f} ± {plx.uncertainty:.3f}",
                               f"{fmt_number(dist.value)} ({fmt_number(dist.low)}–{fmt_number(dist.high)})", note)
             console.print(table)
+        grades = [a for a in result.assessments if a.grade is not None]
+        if grades:
+            table = Table(title="Companion claims", title_justify="left", expand=True, show_lines=True)
+            table.add_column("Companion", no_wrap=True)
+            table.add_column("Grade", no_wrap=True)
+            table.add_column("Reasons", ratio=1)
+            for a in grades:
+                style = {"confirmed": "green", "probable": "green", "candidate": "yellow"}.get(a.grade, "red")
+                table.add_row(a.subject, Text(a.grade, style=style), "\n".join(a.reasons))
+            console.print(table)
         for pair in system.pairs:
             v = result.verdicts[pair.id]
             head = Text()

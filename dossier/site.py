@@ -16,7 +16,7 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 from dossier import __version__
-from dossier.draw import Figure, draw_log, draw_system
+from dossier.draw import Figure, draw_detections, draw_log, draw_spectroscopic, draw_system
 from dossier.engine import SystemResult, weigh_project
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
@@ -108,7 +108,8 @@ class LogSection:
 
 
 def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]],
-                logs: dict[str, list[LogSection]] | None = None) -> dict[str, str]:
+                logs: dict[str, list[LogSection]] | None = None,
+                claim_figures: dict[str, list[Figure]] | None = None) -> dict[str, str]:
     """Relative path -> page text."""
     info = project.settings.project
     common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
@@ -129,6 +130,8 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             note_html=lambda text: render_markdown(text or ""),
             references=_cited(project, result),
             logs=(logs or {}).get(sid, []),
+            claim_figures=(claim_figures or {}).get(sid, []),
+            grades=[a for a in result.assessments if a.grade is not None],
             assumptions=_assumptions(project),
             **common,
         )
@@ -212,9 +215,12 @@ def build(project_dir: Path | str, out_dir: Path | str) -> Path:
     project = load_project(Path(project_dir))
     results = weigh_project(project)
     figures = {sid: draw_system(result) for sid, result in results.items()}
+    claim_figures = {sid: draw_detections(result) + [f for pid in result.facts.rv_orbits
+                                                     for f in draw_spectroscopic(result, pid)]
+                     for sid, result in results.items()}
     logs = {sid: [LogSection(pid, log, draw_log(result, pid)) for pid, log in result.facts.logs.items()]
             for sid, result in results.items()}
-    pages = render_site(project, results, figures, logs)
+    pages = render_site(project, results, figures, logs, claim_figures)
     write_site(Path(out_dir), pages)
     return Path(out_dir).resolve() / "index.html"
 

@@ -58,3 +58,4 @@ def test_system_page_renders_its_figures(browser, tmp_path):
     box = page.locator("#figure-sky-chart svg").bounding_box()
     assert box is not None and box["width"] > 300 and box["height"] > 200
     assert page.locator(".verdict").count() == 5
+    assert page.locator("#claims figure svg").count() == 3

@@ -14,7 +14,7 @@ from tests.conftest import DEMO
 EXPECTED = {  # the demo's fictional scenario (demo_project/systems/*/evidence.yaml, header comments)
     ("alder-4", "AB"): "optical",
     ("heron-1", "AB"): "bound",
-    ("heron-1", "Aa-Ab"): "undetermined",
+    ("heron-1", "Aa-Ab"): "bound",
     ("heron-1", "AC"): "undetermined",
     ("heron-1", "Ba-Bb"): "bound",
     ("heron-1", "AD"): "optical",
@@ -36,7 +36,7 @@ def test_weigh_json_is_the_documented_format(weighed):
         for a in system["assessments"]:
             assert set(a) == {"rule", "rule_version", "title", "subject", "subject_kind", "question", "outcome",
                               "strength", "probability", "statistic", "quantities", "explanation", "method",
-                              "sources"}
+                              "sources", "grade", "reasons"}
         for v in system["verdicts"]:
             assert set(v) == {"pair", "status", "probability", "p_physical", "p_bound_given_physical",
                               "log10_odds_physical", "summary", "reasons_for", "reasons_against", "missing"}
@@ -51,6 +51,20 @@ def test_the_disagreeing_parallax_sources_of_the_demo_are_named(weighed):
     heron = next(s for s in weighed["systems"] if s["id"] == "heron-1")
     dist = next(a for a in heron["assessments"] if a["rule"] == "distance" and a["subject"] == "A")
     assert "The sources disagree" in dist["explanation"] and "sky-survey-2 deviates most" in dist["explanation"]
+
+
+def test_the_demo_claims_are_graded_with_their_reasons(weighed):
+    heron = next(s for s in weighed["systems"] if s["id"] == "heron-1")
+    grades = {a["subject"]: a for a in heron["assessments"] if a["rule"] == "companion-claims"}
+    assert grades["Ab"]["grade"] == "confirmed"  # a spectroscopic orbit from two independent sources
+    assert grades["C"]["grade"] == "doubtful"
+    assert any("Not seen by adaptive-optics in J2019.61 (ao-2019)" in r for r in grades["C"]["reasons"])
+    orbit = next(a for a in heron["assessments"] if a["rule"] == "spectroscopic-orbit")
+    period = next(q for q in orbit["quantities"] if q["name"] == "orbit_P")
+    # the demo's invented truth is P = 812.4 d (demo_project/systems/heron-1/evidence.yaml, published orbit)
+    assert abs(period["value"] - 812.4) < 3 * period["uncertainty"] + 1.0
+    rv = next(a for a in heron["assessments"] if a["rule"] == "radial-velocity-agreement" and a["subject"] == "AB")
+    assert "systemic γ of its fitted orbit of Aa-Ab" in rv["explanation"]
 
 
 def test_weigh_json_is_byte_stable():

@@ -42,7 +42,9 @@ def test_index_lists_every_system_with_its_statuses(site):
 
 def test_pages_carry_figures_sources_and_assumptions(site):
     page = (site / "systems/heron-1/index.html").read_text()
-    assert page.count("<svg") == 6  # sky chart, parallaxes, and two figures for each of the two logged pairs
+    # sky chart, parallaxes, two figures for each of the two logged pairs, the detection map, the RV curve
+    # and the periodogram
+    assert page.count("<svg") == 9
     assert "heron-1: sky chart" in page and "heron-1: parallaxes" in page
     assert "https://doi.org/10.99999/demo.survey.2" in page
     assert "<code>length_scale_kpc</code></td><td>1.35" in page
@@ -108,3 +110,16 @@ def test_observing_log_section_shows_figures_measures_and_flags(site):
     # the optical pair's page shows its straight-line motion
     alder = (site / "systems/alder-4/index.html").read_text()
     assert 'id="log-AB"' in alder and "straight line (as an optical pair moves)" in alder
+
+
+def test_companion_claims_section_shows_grades_and_figures(site):
+    page = (site / "systems/heron-1/index.html").read_text()
+    section = page[page.index('<section id="claims">'):]
+    section = section[: section.index("</section>")]
+    assert '<span class="grade-word grade-word-doubtful">doubtful</span>' in section
+    assert '<span class="grade-word grade-word-confirmed">confirmed</span>' in section
+    assert 'id="figure-detection-map"' in section and 'id="figure-rv-Aa-Ab"' in section
+    assert "Not seen by adaptive-optics" in section
+    # the pair's verdict card points to the grade of its claimed companion
+    card = page[page.index('id="pair-AC"'):]
+    assert "graded <a href=\"#grade-C\"><strong>doubtful</strong></a>" in card[: card.index("</article>")]

@@ -14,9 +14,15 @@ Each assessment answers one *question*:
     Given that they are associated, does their relative motion allow a bound
     orbit? ``probability`` is P(motion allows a bound orbit) and ``strength``
     its log10 odds.
+``orbit``
+    Periodic motion about a common centre (a spectroscopic orbit): evidence
+    both that the pair is physical and that it is bound; ``strength`` counts
+    for both questions.
 ``context``
     Derived quantities that other rules and the reader use (distances,
     separations, periods); no strength.
+
+Rules that grade companion claims set ``grade`` (one of :data:`GRADES`).
 """
 
 from __future__ import annotations
@@ -28,8 +34,10 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict
 
 Outcome = Literal["supports", "against", "neutral", "insufficient", "error"]
-Question = Literal["association", "binding", "context"]
+Question = Literal["association", "binding", "orbit", "context"]
 SubjectKind = Literal["pair", "component"]
+
+GRADES = ("confirmed", "probable", "candidate", "doubtful", "refuted")
 
 OUTCOME_WORDS: dict[str, str] = {
     "supports": "supports a physical pair",
@@ -96,6 +104,8 @@ class Assessment:
     statistic: Quantity | None = None
     quantities: tuple[Quantity, ...] = ()
     sources: tuple[str, ...] = ()
+    grade: str | None = None
+    reasons: tuple[str, ...] = ()
 
     def quantity(self, name: str) -> Quantity | None:
         return next((q for q in self.quantities if q.name == name), None)
@@ -116,6 +126,8 @@ class Assessment:
             "explanation": self.explanation,
             "method": self.method,
             "sources": list(self.sources),
+            "grade": self.grade,
+            "reasons": list(self.reasons),
         }
 
 
@@ -145,6 +157,9 @@ class Rule:
         ``weigh(facts, subject_id, settings) -> Assessment``.
     doc
         The rule's page: the module docstring.
+    applies
+        ``applies(facts, subject_id) -> bool``: the subjects the rule speaks
+        about (default: all of its kind), e.g. only claimed companions.
     """
 
     id: str
@@ -157,6 +172,7 @@ class Rule:
     settings: type[RuleSettings]
     weigh: Callable[..., Assessment]
     doc: str = ""
+    applies: Callable[..., bool] | None = None
 
     def assessment(self, subject: str, outcome: Outcome, explanation: str, **kwargs: Any) -> Assessment:
         """Build an assessment of this rule (fills in the rule's identity)."""

@@ -27,6 +27,7 @@ from functools import cached_property
 import numpy as np
 
 from dossier.astro import angles, distance
+from dossier.cache import Cache
 from dossier.schema.models import Astrometry, Measured, System
 from dossier.schema.settings import Settings
 
@@ -36,8 +37,15 @@ def julian_year(epoch: str) -> float:
     return float(julian_years([epoch])[0])
 
 
+def julian_days(epochs: list[str]) -> np.ndarray:
+    """Julian dates of epoch strings (see :func:`julian_years`); JD = 2451545 + 365.25 (J − 2000)."""
+    return 2451545.0 + 365.25 * (julian_years(epochs) - 2000.0)
+
+
 def julian_years(epochs: list[str]) -> np.ndarray:
-    """Julian epochs (years) of epoch strings: ``J2016.0``, ``B1950.0`` or ISO dates/times (UTC).
+    """Julian epochs (years) of epoch strings: ``J2016.0``, ``B1950.0``, ISO dates/times (UTC) or
+    ``JD2455200.5`` / ``BJD2455200.5`` (a barycentric date is taken at face value: the light-time
+    difference, minutes, is immaterial to the orbits weighed here).
 
     Besselian epochs and calendar dates are converted with ERFA, the IAU SOFA
     routines that astropy.time itself calls (``epb2jd``, ``dtf2d``, ``epj``),
@@ -46,7 +54,9 @@ def julian_years(epochs: list[str]) -> np.ndarray:
     out = np.empty(len(epochs))
     b_idx, b_val, d_idx, d_parts = [], [], [], []
     for k, e in enumerate(epochs):
-        if e.startswith("J"):
+        if e.startswith(("JD", "BJD")):
+            out[k] = 2000.0 + (float(e.lstrip("BJD")) - 2451545.0) / 365.25  # definition of the Julian epoch
+        elif e.startswith("J"):
             out[k] = float(e[1:])
         elif e.startswith("B"):
             b_idx.append(k)
@@ -128,6 +138,7 @@ class StarFacts:
     radial_velocity: Measured | None
     mass: Measured | None
     magnitudes: dict[str, Measured]
+    rv_from_orbit: bool = False
 
 
 @dataclass(frozen=True)
@@ -153,12 +164,43 @@ def _best(entries: list[Astrometry], key) -> Astrometry | None:
 class SystemFacts:
     """Derived inputs for the rules of one system."""
 
-    def __init__(self, system: System, settings: Settings, length_scale_kpc: float = 1.35, log: tuple = ()):
+    def __init__(self, system: System, settings: Settings, length_scale_kpc: float = 1.35, log: tuple = (),
+                 cache=None):
         self.system = system
+        self.cache = cache
         self.settings = settings
         self.length_scale_kpc = length_scale_kpc
         self.pair_ids = {p.id: p for p in system.pairs}
         self.log = tuple(log)
+
+    @cached_property
+    def rv_orbits(self) -> dict[str, RVOrbit]:
+        """RV analysis of every pair whose primary (first member) has a radial-velocity series."""
+        from dossier.rules.registry import BY_ID, rule_settings
+
+        settings = rule_settings(self.settings.rules, BY_ID["spectroscopic-orbit"])
+        out = {}
+        for pair in self.system.pairs:
+            first = pair.members[0]
+            comp = self.system.components.get(first)
+            if comp is None or len(comp.radial_velocity_series) < 3:
+                continue
+            stage = comp.physical.stage if comp.physical else None
+            out[pair.id] = analyse_rv(pair.id, first, list(comp.radial_velocity_series), stage, settings, self.cache)
+        return out
+
+    def systemic_velocity(self, component: str) -> Measured | None:
+        """γ of a fitted spectroscopic orbit of this component (or of a pair that resolves it)."""
+        for pair in self.system.pairs:
+            orbit = self.rv_orbits.get(pair.id)
+            if orbit is None or not orbit.detected:
+                continue
+            if component in (pair.members[0], pair.parent):
+                fit = orbit.fit
+                # a derived value, not a source of the evidence: constructed without the source-id check
+                return Measured.model_construct(value=float(fit.gamma), uncertainty=float(fit.sigma_gamma),
+                                                ref=f"fitted orbit of {pair.id}")
+        return None
 
     @cached_property
     def logs(self) -> dict[str, PairLog]:
@@ -239,6 +281,7 @@ class SystemFacts:
             mass = None
             if phys is not None and phys.mass is not None:
                 mass = phys.mass if phys.mass.ref else phys.mass.model_copy(update={"ref": phys.ref})
+            gamma = self.systemic_velocity(cid)
             out[cid] = StarFacts(
                 id=cid,
                 parallax=combined.get(cid),
@@ -246,7 +289,8 @@ class SystemFacts:
                 motion=None
                 if mot is None
                 else Motion(mot.pmra.value, mot.pmdec.value, mot.pmra.uncertainty, mot.pmdec.uncertainty, _ref(mot.pmra, mot)),
-                radial_velocity=comp.radial_velocity,
+                radial_velocity=gamma if gamma is not None else comp.radial_velocity,
+                rv_from_orbit=gamma is not None,
                 mass=mass,
                 magnitudes=dict(comp.magnitudes),
             )
@@ -457,3 +501,70 @@ def reduce_log(measures: list, ra: float, dec: float, log_settings, model=None) 
     return PairLog(tuple(ms), t, theta, rho, st, sr, x, y, sx, sy, flagged, tuple(reasons),
                    np.asarray(mt), np.asarray(mx), np.asarray(my), np.asarray(msx), np.asarray(msy), np.asarray(mn),
                    linear, quadratic, curvature)
+
+
+# ----------------------------------------------------------------------------
+# Radial-velocity series, analysed once per pair
+
+
+@dataclass(frozen=True)
+class RVOrbit:
+    """The radial-velocity series of a pair's primary and what it shows.
+
+    ``detected`` when the series is variable (log10 p < ``variable_log_p``) and a
+    Keplerian orbit was fitted; then ``fit`` holds the elements.
+    """
+
+    pair: str
+    star: str
+    jd: np.ndarray
+    v: np.ndarray
+    sigma: np.ndarray
+    refs: tuple
+    instruments: tuple
+    jitter: float
+    variability: object
+    periodogram: object | None
+    fit: object | None
+    detected: bool
+
+    def epochs_by_ref(self) -> dict[str, list[float]]:
+        out: dict[str, list[float]] = {}
+        for jd, ref in zip(self.jd, self.refs):
+            out.setdefault(ref, []).append(2000.0 + (float(jd) - 2451545.0) / 365.25)
+        return out
+
+
+GIANT_STAGES = frozenset({"giant", "core-helium-burning", "asymptotic-giant", "subgiant"})
+
+
+def analyse_rv(pair_id: str, star_id: str, series: list, stage: str | None, settings, cache=None) -> RVOrbit:
+    """Variability test, period search and Keplerian fit of one star's RV series."""
+    from dossier.astro import spectro
+
+    jd = julian_days([e.epoch for e in series])
+    v = np.array([e.velocity.value for e in series])
+    sigma = np.array([e.velocity.uncertainty for e in series])
+    refs = tuple(e.velocity.ref or e.ref or "" for e in series)
+    instruments = tuple(e.instrument or "" for e in series)
+    jitter = settings.giant_jitter_kms if stage in GIANT_STAGES else settings.jitter_kms
+    var = spectro.variability(v, sigma, jitter)
+    periodogram = fit = None
+    detected = False
+    if var.log10_p < settings.variable_log_p and len(v) >= settings.min_epochs:
+
+        def compute() -> dict:
+            pg = spectro.periodogram(jd, v, np.hypot(sigma, jitter))
+            # one periodogram: its highest peaks are the fit's starting periods
+            kf = spectro.fit_keplerian(jd, v, sigma, jitter=jitter, periods=pg.top_periods(5), n_starts=0)
+            return {"periodogram": [pg.frequency.tolist(), pg.power.tolist(), float(pg.best_period),
+                                    float(pg.false_alarm_probability)],
+                    "fit": [float(x) if not isinstance(x, (bool, int)) else x for x in kf]}
+
+        inputs = {"jd": jd.tolist(), "v": v.tolist(), "sigma": sigma.tolist(), "jitter": jitter}
+        stored = (cache or Cache(None)).get_or_compute("rv-orbit", inputs, compute)
+        freq, power, best, fap = stored["periodogram"]
+        periodogram = spectro.Periodogram(np.array(freq), np.array(power), best, fap)
+        fit = spectro.KeplerFit(*stored["fit"])
+        detected = bool(fit.converged)
+    return RVOrbit(pair_id, star_id, jd, v, sigma, refs, instruments, jitter, var, periodogram, fit, detected)

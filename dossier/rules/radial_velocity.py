@@ -73,6 +73,9 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     outcome = outcome_of(strength, settings.decisive)
     text = (f"ΔRV = {diff:+.2f} ± {sigma:.2f} km/s against a circular speed of {v_c:.2f} km/s and an escape speed of "
             f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au: likelihood ratio bound : unbound 10^{strength:.1f}.")
+    for star in (a, b):
+        if star.rv_from_orbit:
+            text += f" {star.id}'s velocity is the systemic γ of its {star.radial_velocity.ref}."
     if outcome == "against":
         text += " The pair moves too fast to be bound."
     elif outcome == "neutral":

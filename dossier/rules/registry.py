@@ -10,6 +10,7 @@ from pydantic import ValidationError
 from dossier.rules import (
     chance_alignment,
     common_motion,
+    companion_claims,
     distance,
     orbit_consistency,
     orbit_fit,
@@ -18,6 +19,7 @@ from dossier.rules import (
     radial_velocity,
     relative_motion,
     separation_period,
+    spectroscopic_orbit,
 )
 from dossier.rules.base import Rule, RuleSettings
 
@@ -31,6 +33,8 @@ RULES: tuple[Rule, ...] = (
     relative_motion.RULE,
     orbit_consistency.RULE,
     orbit_fit.RULE,
+    spectroscopic_orbit.RULE,
+    companion_claims.RULE,
     separation_period.RULE,
 )
 

@@ -9,6 +9,10 @@ Association
     parallaxes, motions, the density of the field).
     P(physical) = 1 / (1 + 10^−odds).
 
+Orbit
+    An ``orbit`` assessment (a spectroscopic orbit) counts in both sums
+    below: periodic motion about a common centre shows a physical, bound pair.
+
 Binding
     Each ``binding`` assessment gives the log10 likelihood ratio
     bound : unbound of a measured velocity difference (tangential, radial).
@@ -48,7 +52,7 @@ def _p_from_log_odds(x: float) -> float:
 def _direction(a: Assessment, status: str) -> int:
     """+1 if the assessment speaks for the status, −1 against, 0 neither."""
     sign = {"supports": 1, "against": -1}.get(a.outcome, 0)
-    if a.question == "association":
+    if a.question in ("association", "orbit"):
         return -sign if status == "optical" else sign
     if a.question == "binding":
         if status == "co-moving":
@@ -60,8 +64,8 @@ def _direction(a: Assessment, status: str) -> int:
 
 
 def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings) -> Verdict:
-    assoc = [a for a in assessments if a.question == "association" and a.strength is not None]
-    binding = [a for a in assessments if a.question == "binding" and a.strength is not None]
+    assoc = [a for a in assessments if a.question in ("association", "orbit") and a.strength is not None]
+    binding = [a for a in assessments if a.question in ("binding", "orbit") and a.strength is not None]
     cap = settings.max_strength
 
     def capped(a: Assessment) -> float:

@@ -47,16 +47,22 @@ class Project:
 # YAML with positions
 
 
-def _yaml():
+def _yaml(positions: bool = True):
+    """A YAML reader: round-trip (keeps line and column of every node) or, for speed, the C safe loader."""
     from ruamel.yaml import YAML
 
-    yaml = YAML(typ="rt")
+    yaml = YAML(typ="rt") if positions else YAML(typ="safe", pure=False)
     yaml.allow_duplicate_keys = False
     return yaml
 
 
-def read_yaml(path: Path, shown: str) -> tuple[Any, list[Problem]]:
-    """Parse one YAML file; a syntax error becomes a problem with its position."""
+def read_yaml(path: Path, shown: str, positions: bool = True) -> tuple[Any, list[Problem]]:
+    """Parse one YAML file; a syntax error becomes a problem with its position.
+
+    ``positions=False`` parses with the fast C loader and keeps no positions:
+    callers use it first and parse again with positions only when there is
+    something to report.
+    """
     from ruamel.yaml.error import MarkedYAMLError, YAMLError
 
     try:
@@ -64,7 +70,7 @@ def read_yaml(path: Path, shown: str) -> tuple[Any, list[Problem]]:
     except UnicodeDecodeError as exc:
         return None, [Problem(shown, 0, 0, "", f"is not UTF-8 text ({exc.reason}).", "save the file as UTF-8.")]
     try:
-        return _yaml().load(text), []
+        return _yaml(positions).load(text), []
     except MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line, col = (mark.line + 1, mark.column + 1) if mark else (0, 0)
@@ -477,6 +483,15 @@ def load_system(root: Path, folder: str, refs: dict[str, Reference]) -> tuple[Sy
     if not path.is_file():
         return None, [Problem(shown, 0, 0, "", "the evidence file is missing.",
                               f"run 'dossier new {root} {folder}' or remove the folder.")]
+    # fast path: the C loader and no positions; when anything is wrong, read again with positions
+    tree, problems = read_yaml(path, shown, positions=False)
+    if not problems and isinstance(tree, dict):
+        try:
+            system = System.model_validate(_plain(tree))
+        except ValidationError:
+            system = None
+        if system is not None and not _cross_check_fails(tree, system, folder, refs):
+            return system, []
     tree, problems = read_yaml(path, shown)
     if problems:
         return None, problems
@@ -484,10 +499,18 @@ def load_system(root: Path, folder: str, refs: dict[str, Reference]) -> tuple[Sy
         return None, [Problem(shown, 1, 1, "", "the evidence file must be a mapping of keys (id:, title:, ...).",
                               f"run 'dossier new' for a template.")]
     try:
-        system: System | None = System.model_validate(_plain(tree))
+        system = System.model_validate(_plain(tree))
     except ValidationError as exc:
         system, problems = None, validation_problems(exc, System, tree, shown)
     return system, problems + cross_check(tree, system, folder, refs, shown)
+
+
+def _cross_check_fails(tree: Any, system: System, folder: str, refs: dict[str, Reference]) -> bool:
+    """Whether cross_check would report anything (on a tree without positions)."""
+    try:
+        return bool(cross_check(tree, system, folder, refs, ""))
+    except AttributeError:  # a problem was found and needed a position the fast tree does not keep
+        return True
 
 
 def load_project(root: Path | str, only: str | None = None) -> Project:

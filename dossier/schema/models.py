@@ -35,6 +35,7 @@ from pydantic_core import core_schema
 
 ID_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.+-]*$"
 _EPOCH_RE = re.compile(r"^[JB]\d{3,4}(\.\d+)?$")
+_JD_RE = re.compile(r"^B?JD\s?\d{5,7}(\.\d+)?$")
 
 
 class Model(BaseModel):
@@ -65,6 +66,8 @@ def _epoch_before(value: Any) -> Any:
         text = value.strip()
         if _EPOCH_RE.match(text):
             return text
+        if _JD_RE.match(text):
+            return text.replace(" ", "")
         try:
             dt.datetime.fromisoformat(text)
         except ValueError:
@@ -72,8 +75,8 @@ def _epoch_before(value: Any) -> Any:
         else:
             return text
     raise ValueError(
-        f"{value!r} is not an epoch. Fix: write a Julian year (J2016.0), a Besselian year (B1950.0) "
-        "or a calendar date (2019-05-03)"
+        f"{value!r} is not an epoch. Fix: write a Julian year (J2016.0), a Besselian year (B1950.0), "
+        "a calendar date (2019-05-03) or a Julian date (JD2455200.5, BJD2455200.5)"
     )
 
 
@@ -86,10 +89,11 @@ Epoch = Annotated[
                 {"type": "string", "pattern": r"^[JB]\d{3,4}(\.\d+)?$"},
                 {"type": "string", "format": "date"},
                 {"type": "string", "format": "date-time"},
+                {"type": "string", "pattern": r"^B?JD\s?\d{5,7}(\.\d+)?$"},
                 {"type": "number"},
             ],
             "description": "Epoch: Julian year 'J2016.0' (or a bare number, read as a Julian year), Besselian "
-            "year 'B1950.0', or ISO calendar date/time (UTC).",
+            "year 'B1950.0', ISO calendar date/time (UTC), or Julian date 'JD2455200.5' / barycentric 'BJD…'.",
             "examples": ["J2016.0", "B1950.0", "2019-05-03", 1985.42],
         }
     ),

@@ -1,0 +1,55 @@
+"""A cache of expensive derived results, keyed by everything they depend on.
+
+Some derivations (a period search and a Keplerian fit) cost more to start
+(importing astropy.timeseries and scipy.optimize) than all the other rules
+together. Their results are stored as JSON under
+``<project>/.dossier-cache/`` with a key that hashes the exact inputs, the
+settings and the dossier version, so a stale entry can never be used: a
+changed velocity, setting or program gives a different key. Deleting the
+folder is always safe. Writes go to a temporary file renamed into place.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Any, Callable
+
+from dossier import __version__
+
+CACHE_DIR = ".dossier-cache"
+
+
+class Cache:
+    """JSON results by key, in one folder; ``Cache(None)`` caches nothing."""
+
+    def __init__(self, root: Path | None):
+        self.root = None if root is None else Path(root) / CACHE_DIR
+
+    @staticmethod
+    def key(kind: str, inputs: Any) -> str:
+        text = json.dumps({"kind": kind, "version": __version__, "inputs": inputs}, sort_keys=True, default=repr)
+        return f"{kind}-{hashlib.sha256(text.encode()).hexdigest()[:32]}"
+
+    def get_or_compute(self, kind: str, inputs: Any, compute: Callable[[], dict]) -> dict:
+        """The cached result for these inputs, or ``compute()`` stored for next time."""
+        if self.root is None:
+            return compute()
+        path = self.root / f"{self.key(kind, inputs)}.json"
+        try:
+            return json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            pass
+        result = compute()
+        try:
+            self.root.mkdir(exist_ok=True)
+            fd, tmp = tempfile.mkstemp(dir=self.root, prefix=".tmp-")
+            with os.fdopen(fd, "w", encoding="utf-8") as fh:
+                json.dump(result, fh)
+            os.replace(tmp, path)
+        except OSError:
+            pass  # a read-only project still weighs; it only loses the speed-up
+        return result
