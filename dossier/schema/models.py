@@ -248,6 +248,7 @@ class Physical(Model):
     luminosity: Measured | None = measured("Lsun", "Luminosity")
     age: Measured | None = measured("Myr", "Age")
     metallicity: Measured | None = measured("dex", "[Fe/H]")
+    extinction_v: Measured | None = measured("mag", "Interstellar extinction A_V")
     stage: Stage | None = Field(default=None, description="Evolutionary stage.")
 
 
