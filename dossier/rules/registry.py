@@ -9,9 +9,11 @@ from pydantic import ValidationError
 
 from dossier.rules import (
     chance_alignment,
+    closest_approach,
     common_motion,
     companion_claims,
     distance,
+    neighbours,
     orbit_consistency,
     orbit_fit,
     parallax_agreement,
@@ -36,6 +38,8 @@ RULES: tuple[Rule, ...] = (
     spectroscopic_orbit.RULE,
     companion_claims.RULE,
     separation_period.RULE,
+    neighbours.RULE,
+    closest_approach.RULE,
 )
 
 BY_ID: dict[str, Rule] = {rule.id: rule for rule in RULES}
