@@ -415,10 +415,21 @@ def _describe(points: Sequence[MotionPoint], velocity_points: Sequence[VelocityP
     """Short text alternative of the chart, for screen readers."""
     parts = ["Proper motions in mas/yr, μα* to the right and μδ up, with 1-sigma error circles."]
     for p in points:
-        error = f" ± {common.format_number(p.pm_err)}" if math.isfinite(p.pm_err) and p.pm_err > 0 else ""
-        parts.append(f"{p.id} ({CATEGORY_KEY[category(p)]}): ({p.pmra:g}, {p.pmdec:g}){error}.")
+        if math.isfinite(p.pm_err) and p.pm_err > 0:
+            (pmra, error), (pmdec, _) = common.format_with_error(p.pmra, p.pm_err), common.format_with_error(
+                p.pmdec, p.pm_err)
+            motion = f"({pmra}, {pmdec}) ± {error}"
+        else:
+            motion = f"({p.pmra:g}, {p.pmdec:g}), error unknown"
+        parts.append(f"{p.id} ({CATEGORY_KEY[category(p)]}): {motion}.")
     if velocity_points:
         parts.append("Galactic velocities U against V, km/s, with 1-sigma error bars.")
         for star_id, u, v, su, sv in velocity_points:
-            parts.append(f"{star_id}: U {u:g} ± {su:g}, V {v:g} ± {sv:g}.")
+            parts.append(f"{star_id}: U {_with_error(u, su)}, V {_with_error(v, sv)}.")
     return " ".join(parts)
+
+
+def _with_error(value: float, error: float) -> str:
+    if math.isfinite(error) and error > 0:
+        return " ± ".join(common.format_with_error(value, error))
+    return f"{value:g} (error unknown)"

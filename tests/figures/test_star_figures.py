@@ -218,6 +218,11 @@ def label_boxes_and_markers(fig, ax):
         half = 0.5 * line.get_markersize() * fig.dpi / 72.0
         for x, y in line.get_transform().transform(np.column_stack([line.get_xdata(), line.get_ydata()])):
             markers.append((line.get_label(), Bbox([[x - half, y - half], [x + half, y + half]])))
+    for container in ax.containers:  # matplotlib docs, Axes.errorbar: the markers are the container's first line
+        line = container.lines[0]
+        half = 0.5 * line.get_markersize() * fig.dpi / 72.0
+        for x, y in line.get_transform().transform(np.column_stack([line.get_xdata(), line.get_ydata()])):
+            markers.append((container.get_label(), Bbox([[x - half, y - half], [x + half, y + half]])))
     return boxes, markers, frame
 
 
@@ -454,8 +459,11 @@ def test_neighbours_chart_labels_overlap_neither_each_other_nor_the_markers():
 
 def test_neighbours_chart_describes_itself():
     desc = ET.fromstring(neighbours_chart(POINTS, title="t", velocity_points=VELOCITIES)).find(f"{SVG_NS}desc").text
-    assert "N3 (neighbour not sharing it): (5.2, -3.1) ± 0.50." in desc
+    # Each value to the decimals its error deserves (common.format_with_error: two significant figures of the error).
+    assert "N3 (neighbour not sharing it): (5.20, -3.10) ± 0.50." in desc
+    assert "N4 (neighbour not sharing it): (-30.0, 10.4) ± 2.0." in desc
     assert "N1: U -20.9 ± 1.5, V -13.1 ± 1.2." in desc
+    assert "N3: U 12.0 ± 2.0, V -30.5 ± 1.8." in desc
 
 
 @pytest.mark.parametrize(
