@@ -217,3 +217,65 @@ def draw_detections(result: SystemResult) -> list[Figure]:
                    "Separation against magnitude difference: each claimed detection, and for each search that found "
                    "nothing the region where a companion would have been seen.",
                    detection_map(detections, limits, title=f"{system.id}: detections and searches"))]
+
+
+def draw_stars(result: SystemResult) -> list[Figure]:
+    """HR diagram of the components with the zero-age main sequence and points of equal lifetime."""
+    from dossier.astro import stars
+    from dossier.figures.hr_diagram import HRLine, HRStar, hr_diagram
+
+    points = []
+    for a in result.assessments:
+        if a.rule != "luminosity":
+            continue
+        q = a.quantity("L_radius") or a.quantity("L_magnitude")
+        phys = result.system.components[a.subject].physical
+        if q is None or q.value is None or phys is None or phys.teff is None:
+            continue
+        s = q.uncertainty or 0.0
+        points.append(HRStar(a.subject, phys.teff.value, phys.teff.uncertainty, q.value, max(q.value - s, q.value / 10),
+                             q.value + s, phys.stage))
+    if not points:
+        return []
+    masses = np.geomspace(0.1, 30.0, 200)
+    lum, rad = stars.zams_luminosity(masses), stars.zams_radius(masses)
+    teff = 5772.0 * (lum / rad**2) ** 0.25  # Stefan–Boltzmann in IAU 2015 nominal units
+    lines = [HRLine("zero-age main sequence (Tout et al. 1996)", tuple(map(float, teff)), tuple(map(float, lum)), "zams")]
+    t_ms = stars.t_ms(masses)
+    for target, text in ((100.0, "100 Myr"), (1000.0, "1 Gyr"), (10000.0, "10 Gyr")):
+        k = int(np.argmin(np.abs(np.log(t_ms / target))))
+        # schematic: a star of this mass brightens by about a factor 2 on the main sequence (common practice)
+        lines.append(HRLine(f"main-sequence life {text} ({masses[k]:.2g} M☉)", (float(teff[k]), float(teff[k]) * 0.95),
+                            (float(lum[k]), 2 * float(lum[k])), "isochrone"))
+    return [Figure("hr-diagram", "Hertzsprung–Russell diagram",
+                   "Components with their temperature and luminosity (from radius and temperature where known, else "
+                   "from magnitude and distance), the zero-age main sequence of Tout et al. 1996 at solar metallicity, "
+                   "and, schematically, where stars whose main-sequence life lasts 100 Myr, 1 Gyr and 10 Gyr start.",
+                   hr_diagram(points, lines, title=f"{result.system.id}: HR diagram"))]
+
+
+def draw_neighbours(result: SystemResult) -> list[Figure]:
+    """Proper motions (and U, V) of the system's primary and its neighbours."""
+    from dossier.figures.neighbours_chart import MotionPoint, neighbours_chart
+
+    a = next((x for x in result.assessments if x.rule == "neighbours" and x.outcome != "insufficient"), None)
+    if a is None:
+        return []
+    star = result.facts.stars[a.subject]
+    points = [MotionPoint(a.subject, star.motion.pmra, star.motion.pmdec,
+                          max(star.motion.pmra_error, star.motion.pmdec_error), True, None)]
+    velocities = [(a.subject, a.quantity("U").value, a.quantity("V").value, a.quantity("U").uncertainty,
+                   a.quantity("V").uncertainty)]
+    for n in result.system.neighbours:
+        pm, share = a.quantity(f"pm_{n.id}"), a.quantity(f"shares_{n.id}")
+        if pm is None:
+            continue
+        shares = None if share is None or not np.isfinite(share.value) else bool(share.value)
+        points.append(MotionPoint(n.id, pm.low, pm.high, pm.uncertainty, False, shares))
+        u, v = a.quantity(f"U_{n.id}"), a.quantity(f"V_{n.id}")
+        if u is not None and v is not None:
+            velocities.append((n.id, u.value, v.value, u.uncertainty, v.uncertainty))
+    return [Figure("neighbours", "Motion of the neighbours",
+                   "Proper motions of the system's primary and of its neighbours, coloured by whether they share its "
+                   "space motion; right, the U and V velocities where radial velocities are known.",
+                   neighbours_chart(points, title=f"{result.system.id}: neighbours", velocity_points=velocities))]

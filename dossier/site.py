@@ -16,7 +16,15 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 from dossier import __version__
-from dossier.draw import Figure, draw_detections, draw_log, draw_spectroscopic, draw_system
+from dossier.draw import (
+    Figure,
+    draw_detections,
+    draw_log,
+    draw_neighbours,
+    draw_spectroscopic,
+    draw_stars,
+    draw_system,
+)
 from dossier.engine import SystemResult, weigh_project
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
@@ -109,7 +117,8 @@ class LogSection:
 
 def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]],
                 logs: dict[str, list[LogSection]] | None = None,
-                claim_figures: dict[str, list[Figure]] | None = None) -> dict[str, str]:
+                claim_figures: dict[str, list[Figure]] | None = None,
+                star_figures: dict[str, list[Figure]] | None = None) -> dict[str, str]:
     """Relative path -> page text."""
     info = project.settings.project
     common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
@@ -131,6 +140,10 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             references=_cited(project, result),
             logs=(logs or {}).get(sid, []),
             claim_figures=(claim_figures or {}).get(sid, []),
+            star_figures=(star_figures or {}).get(sid, []),
+            star_assessments=[a for a in result.assessments
+                              if a.rule in ("luminosity", "coevality", "neighbours", "closest-approach")
+                              and a.outcome != "insufficient"],
             grades=[a for a in result.assessments if a.grade is not None],
             assumptions=_assumptions(project),
             **common,
@@ -220,7 +233,8 @@ def build(project_dir: Path | str, out_dir: Path | str) -> Path:
                      for sid, result in results.items()}
     logs = {sid: [LogSection(pid, log, draw_log(result, pid)) for pid, log in result.facts.logs.items()]
             for sid, result in results.items()}
-    pages = render_site(project, results, figures, logs, claim_figures)
+    star_figures = {sid: draw_stars(result) + draw_neighbours(result) for sid, result in results.items()}
+    pages = render_site(project, results, figures, logs, claim_figures, star_figures)
     write_site(Path(out_dir), pages)
     return Path(out_dir).resolve() / "index.html"
 

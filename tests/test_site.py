@@ -42,9 +42,9 @@ def test_index_lists_every_system_with_its_statuses(site):
 
 def test_pages_carry_figures_sources_and_assumptions(site):
     page = (site / "systems/heron-1/index.html").read_text()
-    # sky chart, parallaxes, two figures for each of the two logged pairs, the detection map, the RV curve
-    # and the periodogram
-    assert page.count("<svg") == 9
+    # sky chart, parallaxes, two figures for each of the two logged pairs, the detection map, the RV curve,
+    # the periodogram, the HR diagram and the neighbours' motions
+    assert page.count("<svg") == 11
     assert "heron-1: sky chart" in page and "heron-1: parallaxes" in page
     assert "https://doi.org/10.99999/demo.survey.2" in page
     assert "<code>length_scale_kpc</code></td><td>1.35" in page
@@ -123,3 +123,13 @@ def test_companion_claims_section_shows_grades_and_figures(site):
     # the pair's verdict card points to the grade of its claimed companion
     card = page[page.index('id="pair-AC"'):]
     assert "graded <a href=\"#grade-C\"><strong>doubtful</strong></a>" in card[: card.index("</article>")]
+
+
+def test_stars_section_shows_hr_diagram_coevality_neighbours_and_closest_approach(site):
+    page = (site / "systems/heron-1/index.html").read_text()
+    section = page[page.index('<section id="stars">'):]
+    section = section[: section.index("</section>")]
+    assert 'id="figure-hr-diagram"' in section and 'id="figure-neighbours"' in section
+    assert "Co-evality of the members (AB)" in section
+    assert "Closest approach to the Sun (A)" in section
+    assert "field-1" in section and "shares the motion" in section

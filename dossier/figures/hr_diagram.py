@@ -99,12 +99,13 @@ class HRStar:
     teff : float
         Effective temperature, K.
     teff_err : float
-        Its 1-sigma uncertainty, K; NaN (or 0) draws no error bar.
+        Its 1-sigma uncertainty, K; NaN (or None, or 0) draws no error bar.
     luminosity : float
         Luminosity, L☉ (solar luminosities).
     lum_low, lum_high : float
         Lower and upper ends of its 1-sigma interval, L☉ (not the errors:
-        ``lum_low <= luminosity <= lum_high``); both NaN draw no error bar.
+        ``lum_low <= luminosity <= lum_high``); both NaN (or None) draw no
+        error bar.
     label_extra : str or None
         A note written after the id, for example a spectral type.
     """
@@ -172,6 +173,7 @@ def hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title: str) 
         interval does not contain its luminosity, or a line has an unknown
         kind or fewer than two samples.
     """
+    stars = _unknown_as_nan(stars)
     fig = build_hr_diagram(stars, lines, title=title)
     return common.to_svg(fig, title=title, description=_describe(stars, lines))
 
@@ -185,6 +187,7 @@ def build_hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title:
     line is a line labelled ``"line <label>"`` and its end label a text
     ``"end label of <label>"`` (``xy`` is the end it names).
     """
+    stars = _unknown_as_nan(stars)
     _check(stars, lines)
     teff = np.array([s.teff for s in stars], dtype=float)
     lum = np.array([s.luminosity for s in stars], dtype=float)
@@ -235,6 +238,16 @@ def build_hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title:
 # --- checks and limits -----------------------------------------------------------
 
 
+def _unknown_as_nan(stars: Sequence[HRStar]) -> list[HRStar]:
+    """The stars with an unknown (None) error or interval end written as NaN, which draws no bar."""
+    from dataclasses import replace
+
+    nan = math.nan
+    return [replace(s, teff_err=nan if s.teff_err is None else s.teff_err,
+                    lum_low=nan if s.lum_low is None else s.lum_low,
+                    lum_high=nan if s.lum_high is None else s.lum_high) for s in stars]
+
+
 def _check(stars: Sequence[HRStar], lines: Sequence[HRLine]) -> None:
     if not stars:
         raise ValueError("hr_diagram needs at least one star. "
@@ -251,7 +264,7 @@ def _check(stars: Sequence[HRStar], lines: Sequence[HRLine]) -> None:
                              "Fix: give the 1-sigma error in K, >= 0, or NaN if it is not known.")
         if not (math.isfinite(s.luminosity) and s.luminosity > 0):
             raise ValueError(f"{name} has luminosity {s.luminosity}. Fix: give the luminosity in L☉, > 0.")
-        if math.isnan(s.lum_low) and math.isnan(s.lum_high):
+        if math.isnan(s.lum_low) and math.isnan(s.lum_high):  # not known: no bar
             continue
         if not (math.isfinite(s.lum_low) and math.isfinite(s.lum_high) and 0 < s.lum_low <= s.luminosity <= s.lum_high):
             raise ValueError(f"{name} has luminosity {s.luminosity} with interval {s.lum_low} to {s.lum_high}. "
@@ -260,7 +273,8 @@ def _check(stars: Sequence[HRStar], lines: Sequence[HRLine]) -> None:
     labels = [line.label for line in lines]
     for line in lines:
         if line.kind not in LINE_KINDS:
-            raise ValueError(f"line {line.label!r} has kind {line.kind!r}. Did you mean one of: {', '.join(LINE_KINDS)}?")
+            raise ValueError(f"line {line.label!r} has kind {line.kind!r}. "
+                             f"Did you mean one of: {', '.join(LINE_KINDS)}?")
         if labels.count(line.label) > 1:
             raise ValueError(f"two lines are labelled {line.label!r}. Fix: give each line its own label.")
         if len(line.teff) != len(line.luminosity):

@@ -92,7 +92,7 @@ class MotionPoint:
         Proper motion in declination (μδ), mas/yr.
     pm_err : float
         1-sigma error of the proper motion, mas/yr, the radius of its circle;
-        NaN (or 0) draws none.
+        NaN (or None, or 0) draws none.
     is_system : bool
         Whether the star is a component of the system.
     shares_motion : bool or None
@@ -109,7 +109,8 @@ class MotionPoint:
 
 
 VelocityPoint = tuple[str, float, float, float, float]
-"""``(id, U, V, sigma_U, sigma_V)``: a star's Galactic velocities and their 1-sigma errors, km/s."""
+"""``(id, U, V, sigma_U, sigma_V)``: a star's Galactic velocities and their 1-sigma errors, km/s (an unknown
+error NaN or None: no bar)."""
 
 
 def category(point: MotionPoint) -> str:
@@ -150,8 +151,9 @@ def neighbours_chart(
         motion or velocity is not finite, an error is negative, or a
         velocity names a star that is not among the points.
     """
-    fig = build_neighbours_chart(points, title=title, velocity_points=velocity_points)
-    return common.to_svg(fig, title=title, description=_describe(points, velocity_points))
+    points, velocities = _unknown_as_nan(points, velocity_points)
+    fig = build_neighbours_chart(points, title=title, velocity_points=velocities)
+    return common.to_svg(fig, title=title, description=_describe(points, velocities))
 
 
 def build_neighbours_chart(
@@ -171,7 +173,7 @@ def build_neighbours_chart(
     """
     from matplotlib.patches import Circle
 
-    velocities = list(velocity_points or [])
+    points, velocities = _unknown_as_nan(points, velocity_points)
     _check(points, velocities)
     kinds = {p.id: category(p) for p in points}
     present = [c for c in CATEGORIES if c in kinds.values()]
@@ -214,8 +216,12 @@ def build_neighbours_chart(
             vax.set_xlabel("U (km/s)")
             vax.set_ylabel("V (km/s)")
             axes.append(vax)
+        from matplotlib.ticker import MaxNLocator
+
         for a in axes:
             a.set_aspect("equal", adjustable="box")
+            for axis in (a.xaxis, a.yaxis):  # a few round ticks: small spans have long labels (40.02)
+                axis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]))
 
         any_error = any(_bar(p.pm_err) > 0 for p in points) or any(_bar(v[3]) > 0 or _bar(v[4]) > 0
                                                                    for v in velocities)
@@ -232,6 +238,18 @@ def build_neighbours_chart(
 
 
 # --- checks and limits ---------------------------------------------------------------
+
+
+def _unknown_as_nan(
+    points: Sequence[MotionPoint], velocity_points: Sequence[VelocityPoint] | None
+) -> tuple[list[MotionPoint], list[VelocityPoint]]:
+    """The points and velocities with an unknown (None) error written as NaN, which draws no circle or bar."""
+    from dataclasses import replace
+
+    points = [replace(p, pm_err=math.nan) if p.pm_err is None else p for p in points]
+    velocities = [tuple(math.nan if k >= 3 and value is None else value for k, value in enumerate(entry))
+                  for entry in (velocity_points or [])]
+    return points, velocities
 
 
 def _check(points: Sequence[MotionPoint], velocities: Sequence[VelocityPoint]) -> None:

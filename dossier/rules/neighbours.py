@@ -26,6 +26,8 @@ Insufficient data
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from pydantic import Field
 
@@ -97,6 +99,18 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             excluded = dvt > 3 * settings.group_dispersion_kms
             details.append(f"{n.id}: {sep[i]:.1f} pc away, no radial velocity; tangential |Δv| = {dvt:.1f} km/s: "
                            + ("moves differently." if excluded else "unknown."))
+    per_star = []
+    for i, (n, a) in enumerate(rows):
+        share = (1.0 if "shares the motion" in details[i] else 0.0 if "moves differently" in details[i] else math.nan)
+        per_star += [
+            Quantity(f"pm_{n.id}", f"Proper motion of {n.id} (east, north)", float(math.hypot(pmra[i + 1], pmdec[i + 1])),
+                     "mas/yr", float(max(spmra[i + 1], spmdec[i + 1])), low=float(pmra[i + 1]), high=float(pmdec[i + 1]),
+                     how="low = μα*, high = μδ"),
+            Quantity(f"shares_{n.id}", f"{n.id} shares the motion (1 yes, 0 no)", share, ""),
+        ]
+        if has_rv[i + 1] and has_rv[0]:
+            per_star += [Quantity(f"U_{n.id}", f"U of {n.id}", float(uvw.mean[i + 1][0]), "km/s", float(uvw.std[i + 1][0])),
+                         Quantity(f"V_{n.id}", f"V of {n.id}", float(uvw.mean[i + 1][1]), "km/s", float(uvw.std[i + 1][1]))]
     u, v, w = uvw.mean[0]
     su, sv, sw = uvw.std[0]
     quantities = (
@@ -104,6 +118,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         Quantity("V", "V (towards Galactic rotation)", float(v), "km/s", float(sv)),
         Quantity("W", "W (towards the north Galactic pole)", float(w), "km/s", float(sw)),
         Quantity("sharing", "Neighbours sharing the motion", float(sharing), "", how=f"of {len(rows)}"),
+        *per_star,
     )
     text = (f"{subject} moves at (U, V, W) = ({u:.1f}, {v:.1f}, {w:.1f}) ± ({su:.1f}, {sv:.1f}, {sw:.1f}) km/s "
             "(heliocentric, not corrected for the solar motion); "

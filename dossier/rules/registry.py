@@ -10,9 +10,11 @@ from pydantic import ValidationError
 from dossier.rules import (
     chance_alignment,
     closest_approach,
+    coevality,
     common_motion,
     companion_claims,
     distance,
+    luminosity,
     neighbours,
     orbit_consistency,
     orbit_fit,
@@ -38,6 +40,8 @@ RULES: tuple[Rule, ...] = (
     spectroscopic_orbit.RULE,
     companion_claims.RULE,
     separation_period.RULE,
+    luminosity.RULE,
+    coevality.RULE,
     neighbours.RULE,
     closest_approach.RULE,
 )

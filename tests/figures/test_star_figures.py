@@ -270,11 +270,13 @@ def test_stars_are_drawn_at_their_values_with_asymmetric_luminosity_bars():
     np.testing.assert_allclose(above, [18.0, 0.2, 0.06], rtol=1e-12)
 
 
-def test_unknown_errors_draw_no_bar():
-    star = HRStar("D", 6100.0, math.nan, 2.0, math.nan, math.nan, None)
+@pytest.mark.parametrize("unknown", [math.nan, None], ids=["nan", "none"])
+def test_unknown_errors_draw_no_bar(unknown):
+    star = HRStar("D", 6100.0, unknown, 2.0, unknown, unknown, None)
     _, _, left, right, below, above = errorbars(build_hr_diagram([star, COOL], [], title="t").axes[0], "stars")
     np.testing.assert_allclose([left[0], right[0], below[0], above[0]], 0.0)
     np.testing.assert_allclose([left[1], below[1], above[1]], [150.0, 0.04, 0.06])
+    assert "Star D: 6100 K, 2.00 L☉." in ET.fromstring(hr_diagram([star], [], title="t")).find(f"{SVG_NS}desc").text
 
 
 def test_limits_cover_every_star_with_its_bars_and_every_line():
@@ -388,7 +390,8 @@ def test_proper_motions_are_drawn_where_measured_by_kind():
         assert line.get_marker() == CATEGORY_STYLE[kind]["marker"]
     assert not ax.xaxis_inverted() and not ax.yaxis_inverted()
     # Colour and marker both differ between kinds, so that print in grey still tells them apart.
-    assert len({s["color"] for s in CATEGORY_STYLE.values()}) == len({s["marker"] for s in CATEGORY_STYLE.values()}) == 4
+    assert len({s["color"] for s in CATEGORY_STYLE.values()}) == 4
+    assert len({s["marker"] for s in CATEGORY_STYLE.values()}) == 4
 
 
 def test_error_circles_have_the_proper_motion_error_as_radius_and_equal_scales():
@@ -410,6 +413,18 @@ def test_error_circles_have_the_proper_motion_error_as_radius_and_equal_scales()
     box = ax.get_position()
     width_in, height_in = fig.get_size_inches()
     assert box.width * width_in == pytest.approx(box.height * height_in)
+
+
+@pytest.mark.parametrize("unknown", [math.nan, None], ids=["nan", "none"])
+def test_unknown_errors_draw_no_circle_and_no_bar(unknown):
+    points = [MotionPoint("A", 1.0, 2.0, unknown, True, None), MotionPoint("N1", 3.0, -1.0, 0.5, False, True)]
+    fig = build_neighbours_chart(points, title="t", velocity_points=[("A", -5.0, 3.0, unknown, 0.7)])
+    pm, vax = fig.axes
+    assert [a.get_label() for a in pm.patches if a.get_label().startswith("error circle")] == ["error circle N1"]
+    _, _, left, right, below, above = errorbars(vax, "velocity A")
+    np.testing.assert_allclose([left[0], right[0], below[0], above[0]], [0.0, 0.0, 0.7, 0.7])
+    svg = neighbours_chart(points, title="t", velocity_points=[("A", -5.0, 3.0, unknown, 0.7)])
+    assert "A: U -5 (error unknown), V 3.00 ± 0.70." in ET.fromstring(svg).find(f"{SVG_NS}desc").text
 
 
 def test_velocity_panel_shows_u_against_v_with_error_bars():
