@@ -27,10 +27,12 @@ Insufficient data
 from __future__ import annotations
 
 import math
+from types import SimpleNamespace
 
 import numpy as np
 from pydantic import Field
 
+from dossier.cache import Cache
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -76,9 +78,18 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     vr = np.array([rv.value if rv else 0.0] + [n.radial_velocity.value if n.radial_velocity else 0.0 for n, _ in rows])
     svr = np.array([rv.uncertainty if rv else 0.0] +
                    [n.radial_velocity.uncertainty if n.radial_velocity else 0.0 for n, _ in rows])
-    uvw = kinematics.space_velocity(ra, dec, plx, pmra, pmdec, vr, splx, spmra, spmdec, svr,
-                                    n_samples=settings.samples, rng=settings.seed)
-    diff = kinematics.velocity_difference(uvw.samples[1:], uvw.samples[0][None, :, :])
+    def compute() -> dict:  # astropy's frames cost ~0.8 s to import: the result is cached (dossier/cache.py)
+        uvw = kinematics.space_velocity(ra, dec, plx, pmra, pmdec, vr, splx, spmra, spmdec, svr,
+                                        n_samples=settings.samples, rng=settings.seed)
+        diff = kinematics.velocity_difference(uvw.samples[1:], uvw.samples[0][None, :, :])
+        return {"mean": uvw.mean.tolist(), "std": uvw.std.tolist(), "median": diff.median.tolist(),
+                "p16": diff.p16.tolist(), "p84": diff.p84.tolist()}
+
+    inputs = [a.tolist() for a in (ra, dec, plx, pmra, pmdec, vr, splx, spmra, spmdec, svr)]
+    cache = facts.cache or Cache(None)
+    stored = cache.get_or_compute("uvw", {"inputs": inputs, "n": settings.samples, "seed": settings.seed}, compute)
+    uvw = SimpleNamespace(mean=np.array(stored["mean"]), std=np.array(stored["std"]))
+    diff = SimpleNamespace(median=np.array(stored["median"]), p16=np.array(stored["p16"]), p84=np.array(stored["p84"]))
     dist = 1000.0 / plx
     sep = kinematics.separation_3d(ra[0], dec[0], dist[0], ra[1:], dec[1:], dist[1:])
     k = binary.KM_S_PER_AU_YR

@@ -35,7 +35,7 @@ class Settings(RuleSettings):
     eccentricity: str | float = Field(
         default="thermal", description="'thermal' (f(e) = 2e), 'uniform', or one eccentricity for all orbits."
     )
-    samples: int = Field(default=20000, ge=1000, le=2_000_000)
+    samples: int = Field(default=10000, ge=1000, le=2_000_000)
     seed: int = Field(default=20260101, description="Seed of the Monte Carlo, fixed so that dossiers rebuild byte for byte.")
 
 
