@@ -142,7 +142,7 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             claim_figures=(claim_figures or {}).get(sid, []),
             star_figures=(star_figures or {}).get(sid, []),
             star_assessments=[a for a in result.assessments
-                              if a.rule in ("luminosity", "coevality", "neighbours", "closest-approach")
+                              if a.rule in ("luminosity", "coevality", "space-velocity", "neighbours", "closest-approach")
                               and a.outcome != "insufficient"],
             grades=[a for a in result.assessments if a.grade is not None],
             assumptions=_assumptions(project),

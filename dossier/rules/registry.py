@@ -23,6 +23,7 @@ from dossier.rules import (
     radial_velocity,
     relative_motion,
     separation_period,
+    space_velocity,
     spectroscopic_orbit,
 )
 from dossier.rules.base import Rule, RuleSettings
@@ -42,6 +43,7 @@ RULES: tuple[Rule, ...] = (
     separation_period.RULE,
     luminosity.RULE,
     coevality.RULE,
+    space_velocity.RULE,
     neighbours.RULE,
     closest_approach.RULE,
 )

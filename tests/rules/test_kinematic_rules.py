@@ -50,3 +50,24 @@ def test_neighbours_sharing_the_motion_are_found(heron):
     assert lines["field-1"].endswith("shares the motion.")
     assert lines["field-3"].endswith("moves differently.")
     assert "no radial velocity" in lines["field-4"]
+
+
+def test_space_velocity_of_each_component_matches_astropy(heron):
+    # an independent astropy call (reference library): ICRS → Galactic, Cartesian differentials
+    from astropy import units as u
+    from astropy.coordinates import CartesianDifferential, CartesianRepresentation, SkyCoord
+
+    a = next(x for x in heron.assessments if x.rule == "space-velocity" and x.subject == "B")
+    s = heron.facts.stars["B"]
+    c = SkyCoord(ra=s.position.ra * u.deg, dec=s.position.dec * u.deg,
+                 distance=(1000.0 / s.parallax.mean) * u.pc, pm_ra_cosdec=s.motion.pmra * u.mas / u.yr,
+                 pm_dec=s.motion.pmdec * u.mas / u.yr, radial_velocity=s.radial_velocity.value * u.km / u.s)
+    g = c.galactic
+    g.representation_type, g.differential_type = CartesianRepresentation, CartesianDifferential
+    expected = [g.velocity.d_x.to_value(u.km / u.s), g.velocity.d_y.to_value(u.km / u.s),
+                g.velocity.d_z.to_value(u.km / u.s)]
+    got = [a.quantity(k) for k in ("U", "V", "W")]
+    for q, e in zip(got, expected):
+        assert abs(q.value - e) < 3 * q.uncertainty / (4000 ** 0.5) + 1e-3  # Monte Carlo mean of 4000 samples
+    # the giant's velocity is the systemic γ of the spectroscopic orbit
+    assert "systemic γ" in next(x for x in heron.assessments if x.rule == "space-velocity" and x.subject == "A").explanation
