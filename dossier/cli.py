@@ -102,6 +102,20 @@ def build(project: Path, out_dir: Path) -> None:
 
 
 @cli.command()
+@click.argument("site", type=click.Path(file_okay=False, path_type=Path))
+def verify(site: Path) -> None:
+    """Check a built site against its manifest.json (SHA-256 of every file)."""
+    from dossier.site import verify_site
+
+    problems = verify_site(site)
+    for line in problems:
+        click.echo(f"{site}: {line}", err=True)
+    if problems:
+        raise SystemExit(1)
+    click.echo(f"{site}: every file matches its manifest.")
+
+
+@cli.command()
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default=Path("schemas"),
               show_default=True, help="Folder for the JSON Schema files.")
 def schema(out_dir: Path) -> None:

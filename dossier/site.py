@@ -34,6 +34,7 @@ from dossier.rules.registry import BY_ID, RULES, rule_settings
 from dossier.schema.loader import Project, load_project
 
 MARKER = ".dossier-site"
+MANIFEST = "manifest.json"
 
 
 @dataclass(frozen=True)
@@ -154,6 +155,10 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
     pages["methods.html"] = render_page("methods.html", root="", rules=[
         (r, *doc_sections(r.doc)) for r in RULES], verdict_doc=doc_sections(_verdict_doc()), **common)
     pages["weigh.json"] = to_json(info.title, results)
+    from dossier.exports import catalogue_ecsv, catalogue_votable
+
+    pages["catalogue.ecsv"] = catalogue_ecsv(results)
+    pages["catalogue.vot"] = catalogue_votable(results)
     return pages
 
 
@@ -191,7 +196,48 @@ def check_links(root: Path, pages: dict[str, str]) -> list[str]:
     return broken
 
 
-def write_site(out_dir: Path, pages: dict[str, str]) -> None:
+def _sha256(path: Path) -> str:
+    import hashlib
+
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def input_hashes(project: Project) -> dict[str, str]:
+    """SHA-256 of every input file of the project, by path relative to it."""
+    root = project.root
+    files = [root / "dossier.toml", root / "references.yaml"]
+    files += sorted((root / "systems").glob("*/evidence.yaml")) + sorted((root / "systems").glob("*/log.csv"))
+    return {str(p.relative_to(root)): _sha256(p) for p in files if p.is_file()}
+
+
+def manifest_text(site: Path, inputs: dict[str, str]) -> str:
+    """manifest.json: the SHA-256 of every input and every output (sorted; no clock time)."""
+    import json
+
+    outputs = {str(p.relative_to(site)): _sha256(p) for p in sorted(site.rglob("*"))
+               if p.is_file() and p.name != MANIFEST}
+    doc = {"format": "dossier-manifest", "format_version": 1, "dossier_version": __version__,
+           "inputs": dict(sorted(inputs.items())), "outputs": outputs}
+    return json.dumps(doc, indent=2, sort_keys=True) + "\n"
+
+
+def verify_site(site: Path) -> list[str]:
+    """Differences between a built site and its manifest: changed, missing and unlisted files."""
+    import json
+
+    site = Path(site)
+    path = site / MANIFEST
+    if not path.is_file():
+        raise DossierError(f"{site} has no {MANIFEST}. Fix: give the folder that 'dossier build' wrote.")
+    listed = json.loads(path.read_text(encoding="utf-8"))["outputs"]
+    present = {str(p.relative_to(site)) for p in site.rglob("*") if p.is_file() and p.name != MANIFEST}
+    problems = [f"changed: {name}" for name in sorted(listed) if name in present and _sha256(site / name) != listed[name]]
+    problems += [f"missing: {name}" for name in sorted(set(listed) - present)]
+    problems += [f"not in the manifest: {name}" for name in sorted(present - set(listed))]
+    return problems
+
+
+def write_site(out_dir: Path, pages: dict[str, str], inputs: dict[str, str] | None = None) -> None:
     """Write the site into a fresh folder, then swap it in: never a half-written site."""
     out_dir = out_dir.resolve()
     if out_dir.exists() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
@@ -206,6 +252,7 @@ def write_site(out_dir: Path, pages: dict[str, str]) -> None:
             path.write_text(text, encoding="utf-8")
         shutil.copytree(templates_dir() / "assets", staging / "assets")
         (staging / MARKER).write_text("built by dossier; this folder is replaced on every build\n", encoding="utf-8")
+        (staging / MANIFEST).write_text(manifest_text(staging, inputs or {}), encoding="utf-8")
         broken = check_links(staging, pages)
         if broken:
             raise DossierError("broken links in the built site: " + "; ".join(broken))
@@ -235,7 +282,7 @@ def build(project_dir: Path | str, out_dir: Path | str) -> Path:
             for sid, result in results.items()}
     star_figures = {sid: draw_stars(result) + draw_neighbours(result) for sid, result in results.items()}
     pages = render_site(project, results, figures, logs, claim_figures, star_figures)
-    write_site(Path(out_dir), pages)
+    write_site(Path(out_dir), pages, input_hashes(project))
     return Path(out_dir).resolve() / "index.html"
 
 

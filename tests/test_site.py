@@ -6,6 +6,7 @@ import hashlib
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 from click.testing import CliRunner
 
@@ -133,3 +134,46 @@ def test_stars_section_shows_hr_diagram_coevality_neighbours_and_closest_approac
     assert "Co-evality of the members (AB)" in section
     assert "Closest approach to the Sun (A)" in section
     assert "field-1" in section and "shares the motion" in section
+
+
+def test_catalogue_exports_read_back_with_astropy(site):
+    # astropy (reference library) reads back exactly what was written, in both formats
+    from astropy.table import Table
+
+    from dossier.engine import weigh_project
+    from dossier.exports import catalogue_table
+    from dossier.schema.loader import load_project
+
+    written = catalogue_table(weigh_project(load_project(DEMO)))
+    for name, fmt in (("catalogue.ecsv", "ascii.ecsv"), ("catalogue.vot", "votable")):
+        back = Table.read(site / name, format=fmt)
+        assert back.colnames == written.colnames
+        assert [str(x) for x in back["status"]] == [str(x) for x in written["status"]]
+        for col in ("probability", "rho", "distance"):
+            np.testing.assert_array_equal(np.asarray(back[col], dtype=float), np.asarray(written[col], dtype=float))
+        assert str(back["rho"].unit) == "arcsec"
+    statuses = {(str(r["system"]), str(r["pair"])): str(r["status"]) for r in written}
+    assert statuses == EXPECTED
+
+
+def test_manifest_lists_inputs_and_outputs_and_verify_finds_edits(tmp_path):
+    import json
+
+    out = tmp_path / "site"
+    build(DEMO, out)
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert "systems/heron-1/evidence.yaml" in manifest["inputs"]
+    assert "systems/heron-1/log.csv" in manifest["inputs"]
+    assert "systems/heron-1/index.html" in manifest["outputs"]
+    runner = CliRunner()
+    assert runner.invoke(cli, ["verify", str(out)]).exit_code == 0
+    (out / "systems/wren-9/index.html").write_text("edited")
+    (out / "extra.txt").write_text("x")
+    (out / "catalogue.vot").unlink()
+    result = runner.invoke(cli, ["verify", str(out)])
+    assert result.exit_code == 1
+    assert result.output.splitlines() == [
+        f"{out}: changed: systems/wren-9/index.html",
+        f"{out}: missing: catalogue.vot",
+        f"{out}: not in the manifest: extra.txt",
+    ]

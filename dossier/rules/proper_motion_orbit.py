@@ -59,6 +59,15 @@ def binding_strength(log_lr: float) -> tuple[float, float]:
     return strength, 1.0 / (1.0 + 10.0 ** (-strength))
 
 
+def lr_text(strength: float) -> str:
+    """'10^1.3', or 'below 10^-99' / 'above 10^99' where the strength was clipped."""
+    if strength <= -STRENGTH_LIMIT:
+        return f"below 10^-{STRENGTH_LIMIT:.0f}"
+    if strength >= STRENGTH_LIMIT:
+        return f"above 10^{STRENGTH_LIMIT:.0f}"
+    return f"10^{strength:.1f}"
+
+
 def outcome_of(strength: float, decisive: float) -> str:
     return "supports" if strength > decisive else "against" if strength < -decisive else "neutral"
 
@@ -96,7 +105,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     text = (f"Δμ = {dmu:.3f} ± {sigma:.3f} mas/yr against {orbit:.3f} mas/yr for a circular orbit of {mass[0]:.2f} M☉ "
             f"at {pair.rho_arcsec:.2f}″ and {escape:.3f} mas/yr for escape: "
             + ("within the El-Badry et al. limit" if el_badry else "beyond the El-Badry et al. limit")
-            + f"; likelihood ratio bound : unbound 10^{strength:.1f}.")
+            + f"; likelihood ratio bound : unbound {lr_text(strength)}.")
     if outcome == "against":
         text += " The pair moves too fast to be bound."
     elif outcome == "neutral":

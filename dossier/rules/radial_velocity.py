@@ -36,7 +36,7 @@ from pydantic import Field
 from dossier.astro import binary, binding
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
-from dossier.rules.proper_motion_orbit import binding_strength, outcome_of
+from dossier.rules.proper_motion_orbit import binding_strength, lr_text, outcome_of
 
 
 class Settings(RuleSettings):
@@ -72,7 +72,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     )
     outcome = outcome_of(strength, settings.decisive)
     text = (f"ΔRV = {diff:+.2f} ± {sigma:.2f} km/s against a circular speed of {v_c:.2f} km/s and an escape speed of "
-            f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au: likelihood ratio bound : unbound 10^{strength:.1f}.")
+            f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au: likelihood ratio bound : unbound {lr_text(strength)}.")
     for star in (a, b):
         if star.rv_from_orbit:
             text += f" {star.id}'s velocity is the systemic γ of its {star.radial_velocity.ref}."
