@@ -294,10 +294,10 @@ def test_exact_mass_gives_the_phase_boundaries() -> None:
     M = 2.5
     assert age_interval(M, 0.0, "main-sequence").high == pytest.approx(t_ms(M), rel=1e-12)
     sub = age_interval(M, 0.0, "subgiant")
-    assert (sub.low, sub.high) == pytest.approx((t_ms(M), t_bgb(M)), rel=1e-12)
+    assert (float(sub.low), float(sub.high)) == pytest.approx((float(t_ms(M)), float(t_bgb(M))), rel=1e-12)
     assert age_interval(M, 0.0, "leaving-main-sequence") == sub
     cheb = age_interval(M, 0.0, "core-helium-burning")
-    assert (cheb.low, cheb.high) == pytest.approx((t_hei(M), t_hei_end(M)), rel=1e-12)
+    assert (float(cheb.low), float(cheb.high)) == pytest.approx((float(t_hei(M)), float(t_hei_end(M))), rel=1e-12)
     giant = age_interval(M, 0.0, "giant")
     assert giant.low == pytest.approx(t_bgb(M), rel=1e-12)
     assert giant.high == pytest.approx((1 + stars.AGB_ALLOWANCE) * t_hei_end(M), rel=1e-12)
