@@ -274,8 +274,8 @@ def _toml_position(text: str, loc: tuple[Any, ...]) -> int:
         header = re.match(r"^\[\[?\s*([^\]]+?)\s*\]\]?", line)
         if header:
             section = [s.strip().strip('"') for s in header.group(1).split(".")]
-            if section == keys[: len(section)] and len(section) >= 1:
-                best = best if best and len(section) < len(keys) and best > number else number
+            if section == keys[: len(section)]:
+                best = number  # the table that holds the key, when the key itself is not written
             continue
         assign = re.match(r'^("?[^=\s"]+"?)\s*=', line)
         if assign and section + [assign.group(1).strip('"')] == keys[: len(section) + 1]:
@@ -309,14 +309,10 @@ def load_settings(root: Path) -> tuple[Settings | None, list[Problem]]:
         return None, problems
     from dossier.rules.registry import validate_rule_settings
 
-    problems = [
-        Problem(SETTINGS_FILE, _toml_position(text, ("rules", rule_id) + tuple(loc)), 1, _dotted(["rules", rule_id, *loc]),
-                what, fix)
-        for rule_id, loc, what, fix in validate_rule_settings(settings.rules)
-    ]
-    for p in problems:
-        if p.line == 0:
-            object.__setattr__(p, "column", 0)
+    problems = []
+    for rule_id, loc, what, fix in validate_rule_settings(settings.rules):
+        line = _toml_position(text, ("rules", rule_id) + tuple(loc))
+        problems.append(Problem(SETTINGS_FILE, line, 1 if line else 0, _dotted(["rules", rule_id, *loc]), what, fix))
     for i, entry in enumerate(settings.field_density):
         if entry.per_square_degree.ref is None and entry.ref is None:
             line = _toml_position(text, ("field_density",))
