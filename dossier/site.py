@@ -8,6 +8,7 @@ iterates in an unordered way.
 
 from __future__ import annotations
 
+import json
 import re
 import shutil
 import tempfile
@@ -26,6 +27,7 @@ from dossier.draw import (
     draw_system,
 )
 from dossier.engine import SystemResult, weigh_project
+from dossier.provenance import prov_json, provenance_rows
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
 from dossier.render.markdown import render_markdown
@@ -139,6 +141,7 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             notes_html=render_markdown(result.system.notes),
             note_html=lambda text: render_markdown(text or ""),
             references=_cited(project, result),
+            provenance=provenance_rows(project, result),
             logs=(logs or {}).get(sid, []),
             claim_figures=(claim_figures or {}).get(sid, []),
             star_figures=(star_figures or {}).get(sid, []),
@@ -150,6 +153,8 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             **common,
         )
         pages[f"systems/{sid}/weigh.json"] = to_json(info.title, {sid: result})
+        pages[f"systems/{sid}/provenance.json"] = json.dumps(prov_json(project, result), indent=2, sort_keys=True,
+                                                             ensure_ascii=False) + "\n"
     pages["index.html"] = render_page("index.html", root="", systems=summaries,
                                       description_html=render_markdown(info.description), **common)
     pages["methods.html"] = render_page("methods.html", root="", rules=[

@@ -177,3 +177,17 @@ def test_manifest_lists_inputs_and_outputs_and_verify_finds_edits(tmp_path):
         f"{out}: missing: catalogue.vot",
         f"{out}: not in the manifest: extra.txt",
     ]
+
+
+def test_every_page_has_its_provenance_table_and_prov_json(site):
+    import json
+
+    page = (site / "systems/heron-1/index.html").read_text()
+    section = page[page.index('<section id="provenance">'):]
+    section = section[: section.index("</section>")]
+    # a measured value as recorded, with its source's citation and DOI
+    assert "8.71 ± 0.06 mas" in section and "doi:10.99999/demo.survey.2" in section
+    # a derived value with its rule and the inputs it came from
+    assert "rule <code>distance</code> v1" in section and "sky-survey-1, sky-survey-2, sky-survey-3" in section
+    doc = json.loads((site / "systems/heron-1/provenance.json").read_text())
+    assert {"entity", "activity", "agent", "wasGeneratedBy", "used", "wasDerivedFrom"} <= set(doc)
