@@ -93,11 +93,12 @@ def weigh(project: Path, system_id: str | None, as_json: bool) -> None:
 @project_arg
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False, path_type=Path),
               help="Folder to write the site into (created; its previous content is replaced).")
-def build(project: Path, out_dir: Path) -> None:
+@click.option("--pdf", is_flag=True, help="Also write a PDF of each dossier (slow: about 5-15 s a system).")
+def build(project: Path, out_dir: Path, pdf: bool) -> None:
     """Build the static dossier site of a project."""
     from dossier.site import build as build_site
 
-    index = build_site(project, out_dir)
+    index = build_site(project, out_dir, pdf=pdf)
     click.echo(f"Built {index.parent} — open {index}")
 
 

@@ -121,11 +121,11 @@ class LogSection:
 def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]],
                 logs: dict[str, list[LogSection]] | None = None,
                 claim_figures: dict[str, list[Figure]] | None = None,
-                star_figures: dict[str, list[Figure]] | None = None) -> dict[str, str]:
-    """Relative path -> page text."""
+                star_figures: dict[str, list[Figure]] | None = None, pdf: bool = False) -> dict[str, str | bytes]:
+    """Relative path -> page text (bytes for each system's ``dossier.pdf`` when ``pdf``)."""
     info = project.settings.project
     common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
-    pages: dict[str, str] = {}
+    pages: dict[str, str | bytes] = {}
     summaries = []
     for sid, result in results.items():
         summaries.append({"id": sid, "title": result.system.title, "result": result,
@@ -150,8 +150,15 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
                               and a.outcome != "insufficient"],
             grades=[a for a in result.assessments if a.grade is not None],
             assumptions=_assumptions(project),
+            with_pdf=pdf,
             **common,
         )
+        if pdf:  # slow (WeasyPrint lays out every table): on request, see docs/decisions.md
+            from dossier.render.pdf import render_pdf
+
+            # The page's own path in templates/: its ../../assets/ links resolve to the stylesheets write_site copies.
+            pages[f"systems/{sid}/dossier.pdf"] = render_pdf(pages[f"systems/{sid}/index.html"],
+                                                             templates_dir() / "systems" / sid / "index.html")
         pages[f"systems/{sid}/weigh.json"] = to_json(info.title, {sid: result})
         pages[f"systems/{sid}/provenance.json"] = json.dumps(prov_json(project, result), indent=2, sort_keys=True,
                                                              ensure_ascii=False) + "\n"
@@ -184,7 +191,7 @@ class _Links(HTMLParser):
                 self.links.append(value.split("#")[0])
 
 
-def check_links(root: Path, pages: dict[str, str]) -> list[str]:
+def check_links(root: Path, pages: dict[str, str | bytes]) -> list[str]:
     """Relative links in the pages that point at no file of the site."""
     broken = []
     for rel, text in pages.items():
@@ -242,7 +249,7 @@ def verify_site(site: Path) -> list[str]:
     return problems
 
 
-def write_site(out_dir: Path, pages: dict[str, str], inputs: dict[str, str] | None = None) -> None:
+def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, str] | None = None) -> None:
     """Write the site into a fresh folder, then swap it in: never a half-written site."""
     out_dir = out_dir.resolve()
     if out_dir.exists() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
@@ -254,7 +261,10 @@ def write_site(out_dir: Path, pages: dict[str, str], inputs: dict[str, str] | No
         for rel, text in sorted(pages.items()):
             path = staging / rel
             path.parent.mkdir(parents=True, exist_ok=True)
-            path.write_text(text, encoding="utf-8")
+            if isinstance(text, bytes):
+                path.write_bytes(text)
+            else:
+                path.write_text(text, encoding="utf-8")
         shutil.copytree(templates_dir() / "assets", staging / "assets")
         (staging / MARKER).write_text("built by dossier; this folder is replaced on every build\n", encoding="utf-8")
         (staging / MANIFEST).write_text(manifest_text(staging, inputs or {}), encoding="utf-8")
@@ -275,8 +285,8 @@ def write_site(out_dir: Path, pages: dict[str, str], inputs: dict[str, str] | No
             shutil.rmtree(staging)
 
 
-def build(project_dir: Path | str, out_dir: Path | str) -> Path:
-    """Build the site of a project into ``out_dir``; return the path of its index page."""
+def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = False) -> Path:
+    """Build the site of a project into ``out_dir`` (with a PDF per system when ``pdf``); return its index page."""
     project = load_project(Path(project_dir))
     results = weigh_project(project)
     figures = {sid: draw_system(result) for sid, result in results.items()}
@@ -286,7 +296,7 @@ def build(project_dir: Path | str, out_dir: Path | str) -> Path:
     logs = {sid: [LogSection(pid, log, draw_log(result, pid)) for pid, log in result.facts.logs.items()]
             for sid, result in results.items()}
     star_figures = {sid: draw_stars(result) + draw_neighbours(result) for sid, result in results.items()}
-    pages = render_site(project, results, figures, logs, claim_figures, star_figures)
+    pages = render_site(project, results, figures, logs, claim_figures, star_figures, pdf=pdf)
     write_site(Path(out_dir), pages, input_hashes(project))
     return Path(out_dir).resolve() / "index.html"
 

@@ -6,6 +6,9 @@ missing=""
 command -v chromium >/dev/null 2>&1 || missing="$missing chromium"
 fc-list 2>/dev/null | grep -qi "DejaVu Sans" || missing="$missing fonts-dejavu-core"
 fc-list 2>/dev/null | grep -qi "Liberation" || missing="$missing fonts-liberation"
+for pkg in libpango-1.0-0 libpangoft2-1.0-0 libharfbuzz-subset0 poppler-utils; do  # WeasyPrint, PDF checks
+    dpkg -s "$pkg" >/dev/null 2>&1 || missing="$missing $pkg"
+done
 if [ -n "$missing" ]; then
     SUDO=""
     [ "$(id -u)" -eq 0 ] || SUDO="sudo"
