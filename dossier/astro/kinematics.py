@@ -8,7 +8,7 @@ distances in pc; times in Myr (Julian: 1 Myr = 10^6 x 365.25 d).
 Uncertainties come from Monte Carlo sampling of the inputs: independent
 Gaussians for each quantity, the parallax truncated to positive values so that
 every sample has a distance d = 1000/parallax. Correlations between the
-astrometric parameters (which Gaia publishes) are not modelled, and 1/parallax
+astrometric parameters (which survey catalogues publish) are not modelled, and 1/parallax
 is a fair distance only for fractional errors below about 0.1-0.2
 (Bailer-Jones 2015, PASP 127, 994); see ``dossier.astro.distance`` for the
 posterior that should be used beyond that.

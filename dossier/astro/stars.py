@@ -28,11 +28,10 @@ from memory, and cross-checked against a second, independent transcription:
 
 * Tout et al. 1996 Tables 1–2 and Hurley et al. 2000 Appendix A (a1–a10, the
   giant-branch and core-helium-burning coefficients): SSE's ``BLOCK DATA
-  zdata`` (Hurley, Pols & Tout), as shipped with NBODY6 in the public
-  repository qshu/NbodyArchive, file ``zdata.f``; the way each is combined
-  (polynomials in ζ = log10(Z/0.02), continuity constants, clamps) from the
-  same authors' ``zcnsts.f`` (qshu/NbodyArchive), ``zfuncs.f``
-  (tassos25/BSElocal, a copy of BSE) and ``star.f`` (SSE/BSE).
+  zdata`` (Hurley, Pols & Tout), in a public archive of the N-body codes
+  that ship it, file ``zdata.f``; the way each is combined (polynomials in
+  ζ = log10(Z/0.02), continuity constants, clamps) from the same authors'
+  ``zcnsts.f``, ``zfuncs.f`` (a public copy of BSE) and ``star.f`` (SSE/BSE).
 * a1–a10 agree digit for digit with the transcription in Starlab/SeBa
   (``stellar_model_constants::a``), which labels eqs. 4–7 of the paper.
   Some other public transcriptions carry typos (a2's ζ² term as 5.772723e1
@@ -120,8 +119,8 @@ _FLOWER_HOT = (-0.118115450538963e06, 0.137145973583929e06, -0.636233812100225e0
                -0.170587278406872e04, 0.788731721804990e02)
 # Torres 2010 Table 1 column headings: log Teff < 3.70, 3.70–3.90, > 3.90.
 _FLOWER_EDGES = (3.70, 3.90)
-# Clamp: Flower's calibrating stars span 2900–52500 K (VizieR J/ApJ/469/355
-# ReadMe), and the cool branch, fitted to few M stars, runs away below about
+# Clamp: Flower's calibrating stars span 2900–52500 K (Flower 1996, ApJ 469, 355,
+# its machine-readable table), and the cool branch, fitted to few M stars, runs away below about
 # 3300 K (METHODS.md, "Luminosity").
 BC_TEFF_MIN_K = 3300.0
 BC_TEFF_MAX_K = 50000.0

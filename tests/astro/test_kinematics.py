@@ -3,8 +3,8 @@
 References, named beside each check: astropy (reference library) for the
 Galactic frame, through a Galactic frame with ``representation_type`` and
 ``differential_type`` set explicitly, astropy's ``Distance(parallax=...)`` and
-its units; the Galactic pole and centre in ICRS of ESA 1997, The Hipparcos and
-Tycho Catalogues, Vol. 1, section 1.5.3; scipy.optimize.minimize_scalar on
+its units; the Galactic pole and centre in ICRS as defined by the IAU (1958)
+system transferred to ICRS (from memory); scipy.optimize.minimize_scalar on
 straight-line motion built in the test; scipy.stats (truncnorm, norm, maxwell,
 kstest) for the sampling; plane geometry for hand values.
 """
@@ -27,8 +27,8 @@ from dossier.astro.kinematics import (
     velocity_difference,
 )
 
-# ESA 1997, The Hipparcos and Tycho Catalogues, ESA SP-1200, Vol. 1, section
-# 1.5.3: the north Galactic pole and the Galactic centre (l = b = 0) in ICRS.
+# The north Galactic pole and the Galactic centre (l = b = 0) in ICRS, as the
+# IAU (1958) Galactic system is transferred to ICRS (from memory).
 # astropy's Galactic frame puts them within 0.03 arcsec of these.
 NGP_RA, NGP_DEC = 192.85948, 27.12825
 GC_RA, GC_DEC = 266.40499, -28.93617
@@ -94,7 +94,7 @@ def test_uvw_nominal_matches_astropy_galactic_cartesian_differential() -> None:
 
 @pytest.mark.parametrize("rv", [-37.5, 12.0])
 def test_star_at_north_galactic_pole_moving_radially_has_w_equal_rv(rv: float) -> None:
-    # Reference: Hipparcos Vol. 1, 1.5.3 (pole position); geometry: a purely
+    # Reference: the IAU Galactic pole in ICRS (from memory); geometry: a purely
     # radial motion at the pole is along +z of the Galactic axes.
     res = space_velocity(NGP_RA, NGP_DEC, 20.0, 0.0, 0.0, rv, 0.0, 0.0, 0.0, 0.0, n_samples=2)
     U, V, W = res.nominal
@@ -103,7 +103,7 @@ def test_star_at_north_galactic_pole_moving_radially_has_w_equal_rv(rv: float) -
 
 
 def test_star_at_galactic_centre_moving_radially_has_u_equal_rv() -> None:
-    # Reference: Hipparcos Vol. 1, 1.5.3 (centre position); U points to l = b = 0.
+    # Reference: the IAU Galactic centre in ICRS (from memory); U points to l = b = 0.
     res = space_velocity(GC_RA, GC_DEC, 0.2, 0.0, 0.0, -25.0, 0.0, 0.0, 0.0, 0.0, n_samples=2)
     U, V, W = res.nominal
     assert U == pytest.approx(-25.0, rel=1e-10)
