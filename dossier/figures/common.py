@@ -538,3 +538,42 @@ def format_with_error(value: float, error: float) -> tuple[str, str]:
         return format_number(value), format_number(error)
     decimals = max(0, min(6, 1 - math.floor(math.log10(error))))
     return f"{value:.{decimals}f}", f"{error:.{decimals}f}"
+
+
+def compass(ax: Axes, east: Sequence[float], north: Sequence[float], tips: dict[str, tuple[float, float]]):
+    """Draw N (up) and E (left) arrows in the emptiest corner; return the area it covers (a Bbox, axes fraction).
+
+    Shared by every chart of the sky (the sky chart, the relative orbit).
+    """
+    import numpy as np
+    from matplotlib.transforms import Bbox
+
+    xs = np.concatenate([east, [t[0] for t in tips.values()]])
+    ys = np.concatenate([north, [t[1] for t in tips.values()]])
+    # transData includes the axis scale, so this also holds on symlog charts.
+    points = (ax.transData + ax.transAxes.inverted()).transform(np.column_stack([xs, ys]))
+    length = 0.09
+    elbows = {  # where the N and E arrows meet, in axes fraction
+        "lower right": (0.95, 0.05),
+        "upper right": (0.95, 0.93 - length),
+        "lower left": (0.07 + length, 0.05),
+        "upper left": (0.07 + length, 0.93 - length),
+    }
+
+    def room(elbow: tuple[float, float]) -> float:
+        centre = (elbow[0] - length / 2, elbow[1] + length / 2)
+        return float(np.min(np.hypot(points[:, 0] - centre[0], points[:, 1] - centre[1])))
+
+    x0, y0 = elbows[max(elbows, key=lambda name: round(room(elbows[name]), 6))]
+    arrow = {"arrowstyle": "-|>,head_length=0.4,head_width=0.2", "color": INK_MUTED,
+             "linewidth": 1.0, "shrinkA": 0, "shrinkB": 0}
+    for dx, dy, text, ha, va, offset in (
+        (0.0, length, "N", "center", "bottom", (0, 1)),
+        (-length, 0.0, "E", "right", "center", (-2, 0)),
+    ):
+        ax.annotate("", xy=(x0 + dx, y0 + dy), xytext=(x0, y0), xycoords="axes fraction",
+                    textcoords="axes fraction", arrowprops=arrow, zorder=7)
+        ax.annotate(text, xy=(x0 + dx, y0 + dy), xycoords="axes fraction", xytext=offset,
+                    textcoords="offset points", ha=ha, va=va, fontsize=8.5, fontweight="bold",
+                    color=INK_MUTED, zorder=7)
+    return Bbox.from_extents(x0 - length - 0.04, y0 - 0.02, x0 + 0.02, y0 + length + 0.05)

@@ -27,7 +27,6 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from dossier.figures import common
-from dossier.figures.sky_chart import _compass  # one compass for every chart of the sky
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from matplotlib.axes import Axes
@@ -214,7 +213,7 @@ def build_orbit_chart(
         title_text = ax.set_title(title)
         legend = _legend(fig, curves, primary, secondary, kept.any(), flagged.any(), cmap)
         xs, ys = _all_points(east, north, curves)
-        _compass(ax, xs, ys, {})  # in the corner farthest from every point
+        common.compass(ax, xs, ys, {})  # in the corner farthest from every point
         common.arrange(fig, ax, title=title_text, legend=legend, legend_side="right", square=True)
         if points is not None:
             _add_colorbar(fig, ax, legend, points)
