@@ -93,13 +93,14 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     dist = 1000.0 / plx
     sep = kinematics.separation_3d(ra[0], dec[0], dist[0], ra[1:], dec[1:], dist[1:])
     k = binary.KM_S_PER_AU_YR
-    details, sharing = [], 0
+    details, shares_motion, sharing = [], [], 0  # shares_motion: 1 yes, 0 no, NaN unknown
     for i, (n, _) in enumerate(rows):
         if has_rv[0] and has_rv[i + 1]:
             half = (diff.p84[i] - diff.p16[i]) / 2
             shares = diff.median[i] - 2 * half < settings.group_dispersion_kms
             verdict = "shares the motion" if shares else "moves differently"
             sharing += int(shares)
+            shares_motion.append(1.0 if shares else 0.0)
             details.append(f"{n.id}: {sep[i]:.1f} pc away, |Δv| = {diff.median[i]:.1f} (16–84 %: {diff.p16[i]:.1f}–"
                            f"{diff.p84[i]:.1f}) km/s: {verdict}.")
         else:
@@ -108,11 +109,12 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             vt = k * np.array([pmra[i + 1], pmdec[i + 1]]) / plx[i + 1]
             dvt = float(np.hypot(*(vt - vt0)))
             excluded = dvt > 3 * settings.group_dispersion_kms
+            shares_motion.append(0.0 if excluded else math.nan)
             details.append(f"{n.id}: {sep[i]:.1f} pc away, no radial velocity; tangential |Δv| = {dvt:.1f} km/s: "
                            + ("moves differently." if excluded else "unknown."))
     per_star = []
     for i, (n, a) in enumerate(rows):
-        share = (1.0 if "shares the motion" in details[i] else 0.0 if "moves differently" in details[i] else math.nan)
+        share = shares_motion[i]
         per_star += [
             Quantity(f"pm_{n.id}", f"Proper motion of {n.id} (east, north)", float(math.hypot(pmra[i + 1], pmdec[i + 1])),
                      "mas/yr", float(max(spmra[i + 1], spmdec[i + 1])), low=float(pmra[i + 1]), high=float(pmdec[i + 1]),

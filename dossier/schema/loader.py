@@ -493,7 +493,7 @@ def load_system(root: Path, folder: str, refs: dict[str, Reference]) -> tuple[Sy
         return None, problems
     if not isinstance(tree, dict):
         return None, [Problem(shown, 1, 1, "", "the evidence file must be a mapping of keys (id:, title:, ...).",
-                              f"run 'dossier new' for a template.")]
+                              "run 'dossier new' for a template.")]
     try:
         system = System.model_validate(_plain(tree))
     except ValidationError as exc:

@@ -12,12 +12,12 @@ from __future__ import annotations
 import math
 import subprocess
 import sys
-import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+from tests.figures.svg_helpers import by_label, svg_texts
 from dossier.astro.binary import solve_kepler
 from dossier.figures import common
 from dossier.figures.detection_map import (
@@ -44,7 +44,6 @@ from dossier.figures.rv_chart import (
     source_label,
 )
 
-SVG_NS = "{http://www.w3.org/2000/svg}"
 REPO = Path(__file__).resolve().parents[2]
 
 # --- the invented spectroscopic orbit ------------------------------------------------
@@ -96,18 +95,6 @@ BUSY_LIMITS = [
     SearchLimit("speckle", "2014.80", 0.03, 1.2, 4.5, "I", "ref-2015h"),
     SearchLimit("lucky imaging", "2012.10", 0.3, 6.0, 5.0, "K", "ref-2013i"),
 ]
-
-
-def svg_texts(svg: str) -> list[str]:
-    """The visible text of an SVG: every line of every <text> element."""
-    root = ET.fromstring(svg)
-    return ["".join(node.itertext()).strip() for node in root.iter(f"{SVG_NS}text")]
-
-
-def by_label(artists, label):
-    found = [a for a in artists if a.get_label() == label]
-    assert len(found) == 1, f"expected one artist labelled {label!r}, found {len(found)}"
-    return found[0]
 
 
 def panel(fig, name):

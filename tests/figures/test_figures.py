@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from tests.figures.svg_helpers import SVG_NS, by_label, svg_texts
 from dossier.figures import common
 from dossier.figures.parallax_chart import (
     ParallaxRow,
@@ -32,7 +33,6 @@ from dossier.figures.sky_chart import (
     sky_chart,
 )
 
-SVG_NS = "{http://www.w3.org/2000/svg}"
 REPO = Path(__file__).resolve().parents[2]
 
 # A compact system: offsets within ~16 arcsec, so a linear chart.
@@ -113,18 +113,6 @@ HERON = [
     ),
     ParallaxRow("D", [ParallaxSource("sky-survey-3", 1.21, 0.06, "J2016.0")], 1.21, 0.06, 0.06, None),
 ]
-
-
-def svg_texts(svg: str) -> list[str]:
-    """The visible text of an SVG: every line of every <text> element."""
-    root = ET.fromstring(svg)
-    return ["".join(node.itertext()).strip() for node in root.iter(f"{SVG_NS}text")]
-
-
-def by_label(artists, label):
-    found = [a for a in artists if a.get_label() == label]
-    assert len(found) == 1, f"expected one artist labelled {label!r}, found {len(found)}"
-    return found[0]
 
 
 # --- determinism and inlining ------------------------------------------------------

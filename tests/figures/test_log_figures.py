@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from tests.figures.svg_helpers import SVG_NS, by_label, svg_texts
 from dossier.figures import common
 from dossier.figures.motion_chart import (
     ModelCurve,
@@ -35,7 +36,6 @@ from dossier.figures.orbit_chart import (
     orbit_chart,
 )
 
-SVG_NS = "{http://www.w3.org/2000/svg}"
 REPO = Path(__file__).resolve().parents[2]
 
 # --- the invented pairs -------------------------------------------------------------
@@ -97,18 +97,6 @@ OPTICAL_MEASURES = [
     for t in OPTICAL_T
 ]
 OPTICAL_LINE = ChartCurve("straight-line fit", [8.25, 4.25], [-3.4, 3.0], "linear")
-
-
-def svg_texts(svg: str) -> list[str]:
-    """The visible text of an SVG: every line of every <text> element."""
-    root = ET.fromstring(svg)
-    return ["".join(node.itertext()).strip() for node in root.iter(f"{SVG_NS}text")]
-
-
-def by_label(artists, label):
-    found = [a for a in artists if a.get_label() == label]
-    assert len(found) == 1, f"expected one artist labelled {label!r}, found {len(found)}"
-    return found[0]
 
 
 def panel(fig, name):

@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from tests.figures.svg_helpers import SVG_NS, by_label, svg_texts
 from dossier.figures import common
 from dossier.figures.hr_diagram import (
     KIND_KEY,
@@ -39,7 +40,6 @@ from dossier.figures.neighbours_chart import (
     neighbours_chart,
 )
 
-SVG_NS = "{http://www.w3.org/2000/svg}"
 REPO = Path(__file__).resolve().parents[2]
 
 # --- the invented stars and lines ------------------------------------------------------------
@@ -83,18 +83,6 @@ VELOCITIES = [("A", -22.1, -14.3, 0.8, 0.6), ("B", -21.5, -14.9, 1.1, 0.9), ("N1
 
 
 # --- helpers ---------------------------------------------------------------------------------
-
-
-def svg_texts(svg: str) -> list[str]:
-    """The visible text of an SVG: every line of every <text> element."""
-    root = ET.fromstring(svg)
-    return ["".join(node.itertext()).strip() for node in root.iter(f"{SVG_NS}text")]
-
-
-def by_label(artists, label):
-    found = [a for a in artists if a.get_label() == label]
-    assert len(found) == 1, f"expected one artist labelled {label!r}, found {len(found)}"
-    return found[0]
 
 
 def errorbars(ax, label):

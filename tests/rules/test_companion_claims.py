@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import pytest
-
 from dossier.engine import weigh_system
 from dossier.schema.models import System
 from tests.rules import harness
