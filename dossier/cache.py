@@ -44,12 +44,28 @@ class Cache:
         except (OSError, ValueError):
             pass
         result = compute()
+        self._store(path, json.dumps(result).encode())
+        return result
+
+    def get_bytes(self, kind: str, inputs: Any) -> bytes | None:
+        """Stored bytes (a rendered PDF) for these inputs, or ``None``."""
+        if self.root is None:
+            return None
         try:
-            self.root.mkdir(exist_ok=True)
-            fd, tmp = tempfile.mkstemp(dir=self.root, prefix=".tmp-")
-            with os.fdopen(fd, "w", encoding="utf-8") as fh:
-                json.dump(result, fh)
+            return (self.root / f"{self.key(kind, inputs)}.bin").read_bytes()
+        except OSError:
+            return None
+
+    def put_bytes(self, kind: str, inputs: Any, data: bytes) -> None:
+        if self.root is not None:
+            self._store(self.root / f"{self.key(kind, inputs)}.bin", data)
+
+    def _store(self, path: Path, data: bytes) -> None:
+        try:
+            path.parent.mkdir(exist_ok=True)
+            fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-")
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
             os.replace(tmp, path)
         except OSError:
             pass  # a read-only project still weighs; it only loses the speed-up
-        return result

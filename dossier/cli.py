@@ -93,9 +93,10 @@ def weigh(project: Path, system_id: str | None, as_json: bool) -> None:
 @project_arg
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False, path_type=Path),
               help="Folder to write the site into (created; its previous content is replaced).")
-@click.option("--pdf", is_flag=True, help="Also write a PDF of each dossier (slow: about 5-15 s a system).")
+@click.option("--pdf/--no-pdf", default=True, show_default=True,
+              help="Write a PDF of each dossier (--no-pdf for a quicker preview).")
 def build(project: Path, out_dir: Path, pdf: bool) -> None:
-    """Build the static dossier site of a project."""
+    """Build the static dossier site of a project, its releases and a PDF of each dossier."""
     from dossier.site import build as build_site
 
     index = build_site(project, out_dir, pdf=pdf)
@@ -103,17 +104,32 @@ def build(project: Path, out_dir: Path, pdf: bool) -> None:
 
 
 @cli.command()
-@click.argument("site", type=click.Path(file_okay=False, path_type=Path))
-def verify(site: Path) -> None:
-    """Check a built site against its manifest.json (SHA-256 of every file)."""
-    from dossier.site import verify_site
+@click.argument("path", type=click.Path(file_okay=False, path_type=Path))
+def verify(path: Path) -> None:
+    """Check a built site against its manifest.json, or a project's releases against their records.
 
-    problems = verify_site(site)
+    PATH is a folder written by 'dossier build' (every file's SHA-256 against
+    manifest.json) or a project folder (every release's files, content hash,
+    seal and link to the release before it).
+    """
+    from dossier.site import MANIFEST, verify_site
+
+    if (path / MANIFEST).is_file():
+        problems, what = verify_site(path), "every file matches its manifest"
+    elif (path / "dossier.toml").is_file():
+        from dossier.release import all_releases, verify_releases
+
+        problems = verify_releases(path)
+        count = sum(len(found) for found in all_releases(path).values())
+        what = f"{count} release(s), every one intact"
+    else:
+        raise DossierError(f"{path} holds neither manifest.json nor dossier.toml. Fix: give a built site or a "
+                           "project folder.")
     for line in problems:
-        click.echo(f"{site}: {line}", err=True)
+        click.echo(f"{path}: {line}", err=True)
     if problems:
         raise SystemExit(1)
-    click.echo(f"{site}: every file matches its manifest.")
+    click.echo(f"{path}: {what}.")
 
 
 @cli.command()
@@ -139,6 +155,7 @@ def new(project: Path, system_id: str) -> None:
 
 
 from dossier.cli_log import log as _log; cli.add_command(_log)
+from dossier.cli_release import diff as _diff, release as _release; cli.add_command(_release); cli.add_command(_diff)
 
 
 @cli.command(name="plan")

@@ -173,6 +173,17 @@ def _derived_rows(result: SystemResult) -> Iterator[ProvRow]:
             )
 
 
+def cited_sources(project: Project, result: SystemResult) -> list[tuple[str, object]]:
+    """The sources a system's dossier cites (evidence, assessments, field-star table), by id, sorted."""
+    ids = {ref for _, ref, _ in _refs_in(result.system, (), None) if ref}
+    for a in result.assessments:
+        ids.update(a.sources)
+    ids.update(m.ref for m in project.logs.get(result.system.id, ()) if m.ref)
+    table = result.system.field_density or project.settings.field_density
+    ids.update(r.per_square_degree.ref or r.ref for r in table if (r.per_square_degree.ref or r.ref))
+    return [(ref, project.references[ref]) for ref in sorted(ids) if ref in project.references]
+
+
 def _natural(text: str) -> tuple:
     return tuple(int(t) if t.isdigit() else t for t in re.split(r"(\d+)", text))
 

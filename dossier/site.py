@@ -27,7 +27,7 @@ from dossier.draw import (
     draw_system,
 )
 from dossier.engine import SystemResult, weigh_project
-from dossier.provenance import prov_json, provenance_rows
+from dossier.provenance import cited_sources, prov_json, provenance_rows
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
 from dossier.render.markdown import render_markdown
@@ -98,17 +98,6 @@ def _assumptions(project: Project) -> list[tuple[str, str, str]]:
     return rows
 
 
-def _cited(project: Project, result: SystemResult) -> list[tuple[str, object]]:
-    from dossier.schema.loader import _refs_in
-
-    ids = {ref for _, ref, _ in _refs_in(result.system, (), None) if ref}
-    for a in result.assessments:
-        ids.update(a.sources)
-    table = result.system.field_density or project.settings.field_density
-    ids.update(r.per_square_degree.ref or r.ref for r in table if (r.per_square_degree.ref or r.ref))
-    return [(ref, project.references[ref]) for ref in sorted(ids) if ref in project.references]
-
-
 @dataclass(frozen=True)
 class LogSection:
     """One pair's observing log on a system page."""
@@ -118,17 +107,64 @@ class LogSection:
     figures: list[Figure]
 
 
+def _release_pages(project: Project, sid: str, result: SystemResult, history: list, common: dict
+                   ) -> tuple[dict[str, str | bytes], dict]:
+    """The pages of a system's releases, its "what changed" pages, and what its own page says of them."""
+    from dossier.diff import compare, grouped, state_of, summary
+    from dossier.release import content_hash, evidence_files, version_label
+
+    pages: dict[str, str | bytes] = {}
+    label = version_label(history, content_hash(evidence_files(project.root, sid)))
+    rows = []
+    for i, rel in enumerate(history):
+        n, base = rel.number, f"systems/{sid}/releases/{rel.number}/"
+        previous = history[i - 1] if i else None
+        following = history[i + 1].number if i + 1 < len(history) else None
+        pages[base + "index.html"] = render_page(
+            "release.html", root="../../../../", sid=sid, meta=rel.meta, state=rel.state,
+            previous=previous.number if previous else None, following=following, **common)
+        for name, data in rel.files().items():
+            pages[base + name] = data
+        changes = compare(previous.state, rel.state) if previous else []
+        if previous:
+            pages[base + "changes.html"] = render_page(
+                "changes.html", root="../../../../", sid=sid, system_link="../../index.html",
+                heading=f"what changed in release {n}", groups=grouped(changes), summary=summary(changes),
+                before_label=f"release {previous.number} ({previous.date})", after_label=f"release {n} ({rel.date})",
+                **common)
+        rows.append({"number": n, "date": rel.date, "note": rel.note, "approvals": len(rel.meta["approvals"]),
+                     "changes": summary(changes) if previous else None})
+    unreleased = None
+    if label.startswith("draft after"):
+        last = history[-1]
+        changes = compare(last.state, json.loads(json.dumps(state_of(project, result))))
+        unreleased = summary(changes) or "no change in values, sources, assessments, verdicts or grades"
+        pages[f"systems/{sid}/unreleased.html"] = render_page(
+            "changes.html", root="../../", sid=sid, system_link="index.html",
+            heading=f"changes since release {last.number}", groups=grouped(changes), summary=summary(changes),
+            before_label=f"release {last.number} ({last.date})", after_label="the current evidence (not released)",
+            **common)
+    return pages, {"label": label, "releases": rows, "unreleased": unreleased}
+
+
 def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]],
                 logs: dict[str, list[LogSection]] | None = None,
                 claim_figures: dict[str, list[Figure]] | None = None,
-                star_figures: dict[str, list[Figure]] | None = None, pdf: bool = False) -> dict[str, str | bytes]:
-    """Relative path -> page text (bytes for each system's ``dossier.pdf`` when ``pdf``)."""
+                star_figures: dict[str, list[Figure]] | None = None, pdf: bool = False,
+                releases: dict[str, list] | None = None, use_cache: bool = True) -> dict[str, str | bytes]:
+    """Relative path -> page text (bytes for PDFs and the files of releases).
+
+    ``releases`` maps a system id to its releases (:func:`dossier.release.all_releases`);
+    each gets a frozen page, its files and a "what changed" page from the one before.
+    """
     info = project.settings.project
     common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
     pages: dict[str, str | bytes] = {}
     summaries = []
     for sid, result in results.items():
-        summaries.append({"id": sid, "title": result.system.title, "result": result,
+        release_pages, history = _release_pages(project, sid, result, (releases or {}).get(sid, []), common)
+        pages.update(release_pages)
+        summaries.append({"id": sid, "title": result.system.title, "result": result, "history": history,
                           "statuses": sorted({v.status for v in result.verdicts.values()})})
         pages[f"systems/{sid}/index.html"] = render_page(
             "system.html",
@@ -140,7 +176,7 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             rules=_rule_sections(result),
             notes_html=render_markdown(result.system.notes),
             note_html=lambda text: render_markdown(text or ""),
-            references=_cited(project, result),
+            references=cited_sources(project, result),
             provenance=provenance_rows(project, result),
             logs=(logs or {}).get(sid, []),
             claim_figures=(claim_figures or {}).get(sid, []),
@@ -150,18 +186,18 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
                               and a.outcome != "insufficient"],
             grades=[a for a in result.assessments if a.grade is not None],
             assumptions=_assumptions(project),
+            history=history,
             with_pdf=pdf,
             **common,
         )
-        if pdf:  # slow (WeasyPrint lays out every table): on request, see docs/decisions.md
-            from dossier.render.pdf import render_pdf
-
-            # The page's own path in templates/: its ../../assets/ links resolve to the stylesheets write_site copies.
-            pages[f"systems/{sid}/dossier.pdf"] = render_pdf(pages[f"systems/{sid}/index.html"],
-                                                             templates_dir() / "systems" / sid / "index.html")
         pages[f"systems/{sid}/weigh.json"] = to_json(info.title, {sid: result})
         pages[f"systems/{sid}/provenance.json"] = json.dumps(prov_json(project, result), indent=2, sort_keys=True,
                                                              ensure_ascii=False) + "\n"
+    if pdf:
+        from dossier.cache import Cache
+
+        pages.update(render_pdfs({f"systems/{sid}/index.html": pages[f"systems/{sid}/index.html"] for sid in results},
+                                 Cache(project.root if use_cache else None)))
     pages["index.html"] = render_page("index.html", root="", systems=summaries,
                                       description_html=render_markdown(info.description), **common)
     pages["methods.html"] = render_page("methods.html", root="", rules=[
@@ -172,6 +208,58 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
     pages["catalogue.ecsv"] = catalogue_ecsv(results)
     pages["catalogue.vot"] = catalogue_votable(results)
     return pages
+
+
+def _pdf_job(item: tuple[str, str]) -> tuple[str, bytes]:
+    from dossier.render.pdf import render_pdf
+
+    rel, html = item
+    # The page's own path in templates/: its ../../assets/ links resolve to the stylesheets write_site copies.
+    return rel.replace("index.html", "dossier.pdf"), render_pdf(html, templates_dir() / rel)
+
+
+def render_pdfs(html_pages: dict[str, str], cache=None) -> dict[str, bytes]:
+    """A PDF beside each given page (``…/index.html`` → ``…/dossier.pdf``), over the CPU cores.
+
+    WeasyPrint spends seconds laying out each long page; the pages are
+    independent, so they are rendered in a process pool (results in order of
+    submission, so they do not depend on scheduling). With a
+    :class:`dossier.cache.Cache`, a PDF whose page, stylesheets and WeasyPrint
+    version are unchanged is taken from the cache: the same inputs give the
+    same bytes.
+    """
+    import hashlib
+    import os
+
+    import weasyprint
+
+    styles = {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted((templates_dir() / "assets").glob("*.css"))}
+
+    def key(html: str) -> dict:
+        return {"html": hashlib.sha256(html.encode()).hexdigest(), "css": styles, "weasyprint": weasyprint.__version__}
+
+    out: dict[str, bytes] = {}
+    todo = []
+    for rel, html in sorted(html_pages.items()):
+        found = cache.get_bytes("pdf", key(html)) if cache is not None else None
+        if found is not None:
+            out[rel.replace("index.html", "dossier.pdf")] = found
+        else:
+            todo.append((rel, html))
+    workers = min(len(todo), os.cpu_count() or 1)
+    if workers <= 1:
+        made = list(map(_pdf_job, todo))
+    else:
+        from concurrent.futures import ProcessPoolExecutor
+        from multiprocessing import get_context
+
+        with ProcessPoolExecutor(max_workers=workers, mp_context=get_context("spawn")) as pool:
+            made = list(pool.map(_pdf_job, todo))
+    for (rel, html), (name, data) in zip(todo, made):
+        out[name] = data
+        if cache is not None:
+            cache.put_bytes("pdf", key(html), data)
+    return dict(sorted(out.items()))
 
 
 def _verdict_doc() -> str:
@@ -215,10 +303,13 @@ def _sha256(path: Path) -> str:
 
 
 def input_hashes(project: Project) -> dict[str, str]:
-    """SHA-256 of every input file of the project, by path relative to it."""
+    """SHA-256 of every input file of the project (releases included), by path relative to it."""
+    from dossier.release import RELEASES_DIR
+
     root = project.root
     files = [root / "dossier.toml", root / "references.yaml"]
     files += sorted((root / "systems").glob("*/evidence.yaml")) + sorted((root / "systems").glob("*/log.csv"))
+    files += sorted(p for p in (root / RELEASES_DIR).rglob("*") if p.is_file() and not p.name.startswith("."))
     return {str(p.relative_to(root)): _sha256(p) for p in files if p.is_file()}
 
 
@@ -285,10 +376,25 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
             shutil.rmtree(staging)
 
 
-def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = False) -> Path:
-    """Build the site of a project into ``out_dir`` (with a PDF per system when ``pdf``); return its index page."""
+def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_cache: bool = True) -> Path:
+    """Build the site of a project into ``out_dir``; return its index page.
+
+    Every system gets its page, a PDF of it (unless ``pdf`` is false, for
+    quick previews), its frozen releases and their "what changed" pages.
+    ``use_cache=False`` computes everything afresh (fits and PDFs), ignoring
+    ``<project>/.dossier-cache/``.
+    A release that fails :func:`dossier.release.verify_releases` stops the
+    build before anything is written.
+    """
+    from dossier.release import all_releases, verify_releases
+
     project = load_project(Path(project_dir))
-    results = weigh_project(project)
+    altered = verify_releases(project.root)
+    if altered:
+        raise DossierError("the project's releases were altered, and releases are immutable: " + "; ".join(altered)
+                           + ". Nothing was written. Fix: restore them (e.g. git checkout -- releases/).")
+    releases = {sid: found for sid, found in all_releases(project.root).items() if sid in project.systems}
+    results = weigh_project(project, use_cache=use_cache)
     figures = {sid: draw_system(result) for sid, result in results.items()}
     claim_figures = {sid: draw_detections(result) + [f for pid in result.facts.rv_orbits
                                                      for f in draw_spectroscopic(result, pid)]
@@ -296,7 +402,8 @@ def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = False) -> Pa
     logs = {sid: [LogSection(pid, log, draw_log(result, pid)) for pid, log in result.facts.logs.items()]
             for sid, result in results.items()}
     star_figures = {sid: draw_stars(result) + draw_neighbours(result) for sid, result in results.items()}
-    pages = render_site(project, results, figures, logs, claim_figures, star_figures, pdf=pdf)
+    pages = render_site(project, results, figures, logs, claim_figures, star_figures, pdf=pdf, releases=releases,
+                        use_cache=use_cache)
     write_site(Path(out_dir), pages, input_hashes(project))
     return Path(out_dir).resolve() / "index.html"
 

@@ -28,7 +28,7 @@ def browser():
 
 
 def test_catalogue_filter_by_text_and_status(browser, tmp_path):
-    index = build(DEMO, tmp_path / "site")
+    index = build(DEMO, tmp_path / "site", pdf=False)
     page = browser.new_page()
     failed = []
     page.on("requestfailed", lambda r: failed.append(r.url))
@@ -50,7 +50,7 @@ def test_catalogue_filter_by_text_and_status(browser, tmp_path):
 
 
 def test_system_page_renders_its_figures(browser, tmp_path):
-    index = build(DEMO, tmp_path / "site")
+    index = build(DEMO, tmp_path / "site", pdf=False)
     page = browser.new_page(viewport={"width": 1200, "height": 900})
     page.goto((index.parent / "systems/heron-1/index.html").as_uri())
     assert page.locator("#figures figure svg").count() == 2

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import shutil
 import subprocess
 from pathlib import Path
 
@@ -20,8 +21,8 @@ SYSTEMS = sorted({system for system, _ in EXPECTED})
 def sites(tmp_path_factory) -> tuple[Path, Path]:
     """The demo built twice, into two different folders."""
     first, second = tmp_path_factory.mktemp("one") / "public", tmp_path_factory.mktemp("two") / "site"
-    build(DEMO, first, pdf=True)
-    build(DEMO, second, pdf=True)
+    build(DEMO, first, pdf=True, use_cache=False)  # both rendered, not one taken from the cache
+    build(DEMO, second, pdf=True, use_cache=False)
     return first, second
 
 
@@ -59,3 +60,33 @@ def test_system_page_links_its_pdf_and_the_manifest_lists_it(sites):
     site = sites[0]
     assert '<a href="dossier.pdf">' in (site / "systems/heron-1/index.html").read_text()
     assert "systems/heron-1/dossier.pdf" in (site / "manifest.json").read_text()
+
+
+def test_two_full_builds_are_identical_file_for_file(sites):
+    """Pages, figures, PDFs, exports, releases and manifest: every byte, in two different folders."""
+    def files(site: Path) -> dict[str, bytes]:
+        return {p.relative_to(site).as_posix(): p.read_bytes() for p in sorted(site.rglob("*")) if p.is_file()}
+
+    one, two = files(sites[0]), files(sites[1])
+    assert one.keys() == two.keys()
+    assert [name for name in one if one[name] != two[name]] == []
+
+
+def test_running_header_names_the_version(sites):
+    text = _text(sites[0] / "systems/heron-1/dossier.pdf")
+    assert "heron-1 (release 2)" in text
+    assert "wren-9 (unreleased draft)" in _text(sites[0] / "systems/wren-9/dossier.pdf")
+
+
+def test_an_unchanged_dossier_takes_its_pdf_from_the_cache(demo_copy, tmp_path, sites):
+    shutil.rmtree(demo_copy / ".dossier-cache", ignore_errors=True)  # what the working copy's builds left there
+    build(demo_copy, tmp_path / "first", pdf=True)
+    cached = sorted((demo_copy / ".dossier-cache").glob("pdf-*.bin"))
+    assert len(cached) == len(SYSTEMS)
+    for path in cached:  # a cache entry is used as it is: mark each, and see the marks come back
+        path.write_bytes(path.read_bytes() + b"%cached\n")
+    build(demo_copy, tmp_path / "second", pdf=True)
+    for system in SYSTEMS:
+        data = (tmp_path / "second" / "systems" / system / "dossier.pdf").read_bytes()
+        assert data.endswith(b"%cached\n")
+        assert data[: -len(b"%cached\n")] == (sites[0] / "systems" / system / "dossier.pdf").read_bytes()

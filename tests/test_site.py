@@ -20,7 +20,7 @@ from tests.test_cli_end_to_end import EXPECTED
 @pytest.fixture(scope="module")
 def site(tmp_path_factory) -> Path:
     out = tmp_path_factory.mktemp("site") / "public"
-    result = CliRunner().invoke(cli, ["build", str(DEMO), "--out", str(out)])
+    result = CliRunner().invoke(cli, ["build", str(DEMO), "--out", str(out), "--no-pdf"])
     assert result.exit_code == 0, result.output
     assert result.output.strip().endswith(str(out.resolve() / "index.html"))
     return out
@@ -56,7 +56,7 @@ def test_markdown_notes_render_and_raw_html_is_escaped(demo_copy, tmp_path):
     path = demo_copy / "systems/wren-9/evidence.yaml"
     edit(path, "  stars. The motions agree", "  stars. <script>alert(1)</script> The **motions** agree")
     out = tmp_path / "out"
-    build(demo_copy, out)
+    build(demo_copy, out, pdf=False)
     page = (out / "systems/wren-9/index.html").read_text()
     assert "<script>alert(1)</script>" not in page
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
@@ -68,8 +68,8 @@ def test_rebuild_is_byte_identical(tmp_path):
         return {str(p.relative_to(root)): hashlib.sha256(p.read_bytes()).hexdigest()
                 for p in sorted(root.rglob("*")) if p.is_file()}
 
-    build(DEMO, tmp_path / "one")
-    build(DEMO, tmp_path / "two")
+    build(DEMO, tmp_path / "one", pdf=False)
+    build(DEMO, tmp_path / "two", pdf=False)
     assert digest(tmp_path / "one") == digest(tmp_path / "two")
 
 
@@ -91,7 +91,7 @@ def test_a_foreign_folder_is_never_overwritten(tmp_path):
 
 def test_a_failed_build_leaves_the_previous_site_in_place(demo_copy, tmp_path):
     out = tmp_path / "out"
-    build(demo_copy, out)
+    build(demo_copy, out, pdf=False)
     before = (out / "index.html").read_text()
     edit(demo_copy / "systems/wren-9/evidence.yaml", "id: wren-9", "id: wren-8")
     result = CliRunner().invoke(cli, ["build", str(demo_copy), "--out", str(out)])
@@ -160,7 +160,7 @@ def test_manifest_lists_inputs_and_outputs_and_verify_finds_edits(tmp_path):
     import json
 
     out = tmp_path / "site"
-    build(DEMO, out)
+    build(DEMO, out, pdf=False)
     manifest = json.loads((out / "manifest.json").read_text())
     assert "systems/heron-1/evidence.yaml" in manifest["inputs"]
     assert "systems/heron-1/log.csv" in manifest["inputs"]

@@ -75,6 +75,16 @@ class LogSettings(Model):
     )
 
 
+class ReleaseSettings(Model):
+    """What ``dossier release`` asks before it freezes a system's dossier (see dossier/release.py)."""
+
+    required_approvals: int = Field(
+        default=0, ge=0,
+        description="Approving reviews (under 'reviews:' in the evidence, new since the previous release, one per "
+                    "reviewer) needed before a release is allowed.",
+    )
+
+
 class Settings(Model):
     """The whole ``dossier.toml``."""
 
@@ -84,6 +94,7 @@ class Settings(Model):
     )
     verdict: VerdictSettings = Field(default_factory=VerdictSettings)
     log: LogSettings = Field(default_factory=LogSettings)
+    release: ReleaseSettings = Field(default_factory=ReleaseSettings)
     rules: dict[str, dict[str, Any]] = Field(
         default_factory=dict, description="Per-rule settings tables, keyed by rule id; 'enabled = false' switches a rule off."
     )
