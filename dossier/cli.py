@@ -104,6 +104,39 @@ def build(project: Path, out_dir: Path, pdf: bool) -> None:
 
 
 @cli.command()
+@project_arg
+@click.option("--port", type=click.IntRange(0, 65535), default=8000, show_default=True,
+              help="Port to listen on (0 picks a free one).")
+@click.option("--host", default="127.0.0.1", show_default=True,
+              help="Address to listen on, and only this one.")
+@click.option("--pdf/--no-pdf", default=False, show_default=True,
+              help="Also write a PDF of each dossier (slower rebuilds).")
+def serve(project: Path, port: int, host: str, pdf: bool) -> None:
+    """Preview the site: build it into a temporary folder, serve it, rebuild it when the evidence changes.
+
+    The project's input files are checked twice a second; a rebuild that
+    fails prints the problems and keeps serving the previous site. Ctrl-C
+    stops the server and removes the temporary folder.
+    """
+    import signal
+
+    from dossier.serve import Server
+
+    server = Server(project, host=host, port=port, pdf=pdf, echo=click.echo)
+    previous = signal.signal(signal.SIGTERM, signal.default_int_handler)  # 'kill' stops as cleanly as Ctrl-C
+    try:
+        click.echo(f"Building {project}…")
+        server.start()
+        click.echo(f"Serving {project} at {server.url} — rebuilt when the evidence changes; Ctrl-C to stop.")
+        server.wait()
+    except KeyboardInterrupt:
+        click.echo("Stopping.")
+    finally:
+        server.stop()
+        signal.signal(signal.SIGTERM, previous)
+
+
+@cli.command()
 @click.argument("path", type=click.Path(file_okay=False, path_type=Path))
 def verify(path: Path) -> None:
     """Check a built site against its manifest.json, or a project's releases against their records.

@@ -12,12 +12,19 @@ from dossier.engine import SystemResult
 
 @dataclass(frozen=True)
 class Figure:
-    """One figure of a dossier page."""
+    """One figure of a dossier page.
+
+    ``alt`` is its text alternative for screen readers (WCAG 2.1 SC 1.1.1):
+    one to three plain sentences, written from the data the figure plots
+    (:mod:`dossier.figures.alt`), and also carried by the SVG itself as its
+    ``aria-label`` and ``<title>``. Plain text: escape it where it is used.
+    """
 
     slug: str
     title: str
     caption: str
     svg: str
+    alt: str
 
 
 def _sky_inputs(result: SystemResult):
@@ -70,30 +77,44 @@ def _parallax_rows(result: SystemResult):
 
 def draw_system(result: SystemResult) -> list[Figure]:
     """The figures of one system, in page order; a figure without data is left out."""
+    from dossier.figures import alt
     from dossier.figures.parallax_chart import parallax_chart
     from dossier.figures.sky_chart import sky_chart
 
+    sid = result.system.id
     figures = []
     sky = _sky_inputs(result)
     if sky is not None:
         stars, pairs, epoch = sky
+        text = alt.sky_chart(sid, stars, pairs)
         figures.append(Figure(
             "sky-chart",
             "Sky chart",
             f"Offsets of the components from {stars[0].id} at epoch J{epoch:.2f}, east to the left; arrows show "
             "each component's proper motion; lines join the pairs, styled by their status.",
-            sky_chart(stars, pairs, title=f"{result.system.id}: sky chart"),
+            sky_chart(stars, pairs, title=f"{sid}: sky chart", alt=text),
+            text,
         ))
     rows = _parallax_rows(result)
     if rows:
+        text = alt.parallax_chart(sid, rows)
         figures.append(Figure(
             "parallaxes",
             "Parallaxes",
             "Every parallax source per component with its 1σ error bar; the vertical line and band are the combined "
             "value and its uncertainty (widened by the Birge ratio when the sources disagree).",
-            parallax_chart(rows, title=f"{result.system.id}: parallaxes"),
+            parallax_chart(rows, title=f"{sid}: parallaxes", alt=text),
+            text,
         ))
     return figures
+
+
+CURVATURE_P = 1e-3
+"""p-value of the curvature test below which a log's path is drawn (and described) as curved."""
+
+
+def _curved(log) -> bool:
+    return log.curvature is not None and log.curvature.p_value < CURVATURE_P
 
 
 def _log_models(result: SystemResult, pair_id: str, log) -> list[tuple[str, str, np.ndarray, np.ndarray, np.ndarray]]:
@@ -107,8 +128,7 @@ def _log_models(result: SystemResult, pair_id: str, log) -> list[tuple[str, str,
     if log.linear is not None:
         x, y, _, _ = log.linear.predict(t)
         models.append(("straight line (as an optical pair moves)", "linear", t, x, y))
-    curved = log.curvature is not None and log.curvature.p_value < 1e-3
-    if log.quadratic is not None and curved:
+    if log.quadratic is not None and _curved(log):
         x, y, _, _ = log.quadratic.predict(t)
         models.append(("quadratic (curved path)", "quadratic", t, x, y))
     orbit = result.facts.visual_orbit(pair_id)
@@ -130,6 +150,7 @@ def _log_models(result: SystemResult, pair_id: str, log) -> list[tuple[str, str,
 def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
     """The apparent relative orbit and θ, ρ against time of one pair's observing log."""
     from dossier.astro import reduction
+    from dossier.figures import alt
     from dossier.figures.motion_chart import ModelCurve, MotionSeries, motion_chart
     from dossier.figures.orbit_chart import ChartCurve, ChartMeasure, orbit_chart
 
@@ -155,22 +176,32 @@ def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
     residual = next((c.label for c in model_curves if c.kind == "orbit"), None) or \
         next((c.label for c in model_curves if c.kind == "linear"), None)
     first, second = pair.members
+    sid = result.system.id
+    p_curvature = log.curvature.p_value if log.curvature is not None else None
+    path_alt = alt.relative_path(sid, pair_id, first, second, series, curves, p_curvature=p_curvature,
+                                 curved=_curved(log))
+    motion_alt = alt.motion(sid, pair_id, series, p_curvature=p_curvature, curved=_curved(log),
+                            residual_model=residual)
     return [
         Figure(f"orbit-{pair_id}", f"Relative path of {pair_id}",
                f"Measures of {second} relative to {first} (θ precessed to J2000), coloured by epoch, east to the "
                "left; flagged measures are open and listed in the log table; curves are the models weighed.",
-               orbit_chart(measures, curves, title=f"{result.system.id} {pair_id}: relative path", primary=first,
-                           secondary=second)),
+               orbit_chart(measures, curves, title=f"{sid} {pair_id}: relative path", primary=first,
+                           secondary=second, alt=path_alt),
+               path_alt),
         Figure(f"motion-{pair_id}", f"θ and ρ of {pair_id} against time",
                "Position angle and separation of every measure with its 1σ uncertainty (stated, else the method's "
                f"default), and residuals O−C against the {residual or 'model'}.",
-               motion_chart(series, model_curves, title=f"{result.system.id} {pair_id}: θ and ρ", residual_model=residual)),
+               motion_chart(series, model_curves, title=f"{sid} {pair_id}: θ and ρ", residual_model=residual,
+                            alt=motion_alt),
+               motion_alt),
     ]
 
 
 def draw_spectroscopic(result: SystemResult, pair_id: str) -> list[Figure]:
     """RV curve with the fitted orbit and residuals, and the periodogram, of one pair's primary."""
     from dossier.astro import spectro
+    from dossier.figures import alt
     from dossier.figures.rv_chart import RVModel, RVPoint, periodogram_chart, rv_chart
 
     orbit = result.facts.rv_orbits.get(pair_id)
@@ -179,30 +210,39 @@ def draw_spectroscopic(result: SystemResult, pair_id: str) -> list[Figure]:
     points = [RVPoint(float(t) - 2400000.0, float(v), float(s), inst or None, ref or None)
               for t, v, s, inst, ref in zip(orbit.jd, orbit.v, orbit.sigma, orbit.instruments, orbit.refs)]
     model = None
+    elements = {}
     if orbit.fit is not None and orbit.detected:
         f = orbit.fit
         t = np.linspace(orbit.jd.min() - 0.05 * np.ptp(orbit.jd), orbit.jd.max() + 0.05 * np.ptp(orbit.jd), 1500)
         v = spectro.rv_model(t, f.P, f.K, f.e, f.omega, f.T, f.gamma)
         model = RVModel(tuple(map(float, t - 2400000.0)), tuple(map(float, v)), "fitted Keplerian orbit",
                         float(f.P), float(f.T) - 2400000.0)
+        elements = {"period": (float(f.P), float(f.sigma_P)), "semi_amplitude": (float(f.K), float(f.sigma_K))}
+    sid = result.system.id
+    rv_alt = alt.rv_chart(sid, pair_id, orbit.star, points, period=elements.get("period"),
+                          semi_amplitude=elements.get("semi_amplitude"))
     figures = [Figure(f"rv-{pair_id}", f"Radial velocities of {orbit.star}",
                       f"Velocities of {orbit.star} against time and folded on the fitted period, with the Keplerian "
                       "orbit and the residuals; markers by instrument and source.",
-                      rv_chart(points, model, title=f"{result.system.id} {orbit.star}: radial velocities"))]
+                      rv_chart(points, model, title=f"{sid} {orbit.star}: radial velocities", alt=rv_alt),
+                      rv_alt)]
     if orbit.periodogram is not None:
         freq, power, best, fap = orbit.periodogram
+        period = tuple(map(float, 1.0 / np.asarray(freq)))
+        fap = float(fap) if np.isfinite(fap) else None
+        pg_alt = alt.periodogram(sid, pair_id, orbit.star, period, best_period=float(best), fap=fap)
         figures.append(Figure(f"periodogram-{pair_id}", f"Periodogram of {orbit.star}",
                               "Lomb–Scargle power against trial period; the best period is marked with its "
                               "false-alarm probability.",
-                              periodogram_chart(tuple(map(float, 1.0 / np.asarray(freq))), tuple(map(float, power)),
-                                                best_period=float(best),
-                                                fap=float(fap) if np.isfinite(fap) else None,
-                                                title=f"{result.system.id} {orbit.star}: periodogram")))
+                              periodogram_chart(period, tuple(map(float, power)), best_period=float(best), fap=fap,
+                                                title=f"{sid} {orbit.star}: periodogram", alt=pg_alt),
+                              pg_alt))
     return figures
 
 
 def draw_detections(result: SystemResult) -> list[Figure]:
     """Separation against contrast: every imaging claim and every search's sensitivity."""
+    from dossier.figures import alt
     from dossier.figures.detection_map import Detection, SearchLimit, detection_map
 
     system = result.system
@@ -213,15 +253,18 @@ def draw_detections(result: SystemResult) -> list[Figure]:
                             c.band, c.ref) for c in claims]
     limits = [SearchLimit(n.method, n.epoch, n.rho_range[0], n.rho_range[1], n.contrast, n.band, n.ref)
               for n in system.non_detections]
+    text = alt.detection_map(system.id, detections, limits)
     return [Figure("detection-map", "Detections and searches",
                    "Separation against magnitude difference: each claimed detection, and for each search that found "
                    "nothing the region where a companion would have been seen.",
-                   detection_map(detections, limits, title=f"{system.id}: detections and searches"))]
+                   detection_map(detections, limits, title=f"{system.id}: detections and searches", alt=text),
+                   text)]
 
 
 def draw_stars(result: SystemResult) -> list[Figure]:
     """HR diagram of the components with the zero-age main sequence and points of equal lifetime."""
     from dossier.astro import stars
+    from dossier.figures import alt
     from dossier.figures.hr_diagram import HRLine, HRStar, hr_diagram
 
     points = []
@@ -247,15 +290,18 @@ def draw_stars(result: SystemResult) -> list[Figure]:
         # schematic: a star of this mass brightens by about a factor 2 on the main sequence (common practice)
         lines.append(HRLine(f"main-sequence life {text} ({masses[k]:.2g} M☉)", (float(teff[k]), float(teff[k]) * 0.95),
                             (float(lum[k]), 2 * float(lum[k])), "isochrone"))
+    text = alt.hr_diagram(result.system.id, points, lines)
     return [Figure("hr-diagram", "Hertzsprung–Russell diagram",
                    "Components with their temperature and luminosity (from radius and temperature where known, else "
                    "from magnitude and distance), the zero-age main sequence of Tout et al. 1996 at solar metallicity, "
                    "and, schematically, where stars whose main-sequence life lasts 100 Myr, 1 Gyr and 10 Gyr start.",
-                   hr_diagram(points, lines, title=f"{result.system.id}: HR diagram"))]
+                   hr_diagram(points, lines, title=f"{result.system.id}: HR diagram", alt=text),
+                   text)]
 
 
 def draw_neighbours(result: SystemResult) -> list[Figure]:
     """Proper motions (and U, V) of the system's primary and its neighbours."""
+    from dossier.figures import alt
     from dossier.figures.neighbours_chart import MotionPoint, neighbours_chart
 
     a = next((x for x in result.assessments if x.rule == "neighbours" and x.outcome != "insufficient"), None)
@@ -275,7 +321,10 @@ def draw_neighbours(result: SystemResult) -> list[Figure]:
         u, v = a.quantity(f"U_{n.id}"), a.quantity(f"V_{n.id}")
         if u is not None and v is not None:
             velocities.append((n.id, u.value, v.value, u.uncertainty, v.uncertainty))
+    text = alt.neighbours_chart(result.system.id, points, velocities=len(velocities))
     return [Figure("neighbours", "Motion of the neighbours",
                    "Proper motions of the system's primary and of its neighbours, coloured by whether they share its "
                    "space motion; right, the U and V velocities where radial velocities are known.",
-                   neighbours_chart(points, title=f"{result.system.id}: neighbours", velocity_points=velocities))]
+                   neighbours_chart(points, title=f"{result.system.id}: neighbours", velocity_points=velocities,
+                                    alt=text),
+                   text)]

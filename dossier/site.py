@@ -30,9 +30,11 @@ from dossier.engine import SystemResult, weigh_project
 from dossier.provenance import cited_sources, prov_json, provenance_rows
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
+from dossier.render.catalogue import search_index_js, system_row
 from dossier.render.markdown import render_markdown
 from dossier.report import system_dict, to_json
 from dossier.rules.registry import BY_ID, RULES, rule_settings
+from dossier.rules.verdict import strongest
 from dossier.schema.loader import Project, load_project
 
 MARKER = ".dossier-site"
@@ -164,8 +166,10 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
     for sid, result in results.items():
         release_pages, history = _release_pages(project, sid, result, (releases or {}).get(sid, []), common)
         pages.update(release_pages)
-        summaries.append({"id": sid, "title": result.system.title, "result": result, "history": history,
-                          "statuses": sorted({v.status for v in result.verdicts.values()})})
+        summaries.append(system_row(result, history))
+        log_file = project.root / "systems" / sid / "log.csv"
+        if log_file.is_file():  # the observing log as recorded, for download
+            pages[f"systems/{sid}/log.csv"] = log_file.read_bytes()
         pages[f"systems/{sid}/index.html"] = render_page(
             "system.html",
             root="../../",
@@ -187,7 +191,10 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             grades=[a for a in result.assessments if a.grade is not None],
             assumptions=_assumptions(project),
             history=history,
+            strongest={p.id: strongest([a for a in result.for_subject(p.id) if a.subject_kind == "pair"],
+                                       result.verdicts[p.id].status) for p in result.system.pairs},
             with_pdf=pdf,
+            with_log=log_file.is_file(),
             **common,
         )
         pages[f"systems/{sid}/weigh.json"] = to_json(info.title, {sid: result})
@@ -200,6 +207,7 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
                                  Cache(project.root if use_cache else None)))
     pages["index.html"] = render_page("index.html", root="", systems=summaries,
                                       description_html=render_markdown(info.description), **common)
+    pages["search-index.js"] = search_index_js(summaries)
     pages["methods.html"] = render_page("methods.html", root="", rules=[
         (r, *doc_sections(r.doc)) for r in RULES], verdict_doc=doc_sections(_verdict_doc()), **common)
     pages["weigh.json"] = to_json(info.title, results)
@@ -302,15 +310,20 @@ def _sha256(path: Path) -> str:
     return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
-def input_hashes(project: Project) -> dict[str, str]:
-    """SHA-256 of every input file of the project (releases included), by path relative to it."""
+def input_files(root: Path) -> list[Path]:
+    """The files a build reads: settings, references, evidence, logs and releases (hidden paths left out)."""
     from dossier.release import RELEASES_DIR
 
-    root = project.root
+    root = Path(root)
     files = [root / "dossier.toml", root / "references.yaml"]
     files += sorted((root / "systems").glob("*/evidence.yaml")) + sorted((root / "systems").glob("*/log.csv"))
-    files += sorted(p for p in (root / RELEASES_DIR).rglob("*") if p.is_file() and not p.name.startswith("."))
-    return {str(p.relative_to(root)): _sha256(p) for p in files if p.is_file()}
+    files += sorted((root / RELEASES_DIR).rglob("*"))
+    return [p for p in files if not any(part.startswith(".") for part in p.relative_to(root).parts)]
+
+
+def input_hashes(project: Project) -> dict[str, str]:
+    """SHA-256 of every input file of the project (releases included), by path relative to it."""
+    return {p.relative_to(project.root).as_posix(): _sha256(p) for p in input_files(project.root) if p.is_file()}
 
 
 def manifest_text(site: Path, inputs: dict[str, str]) -> str:

@@ -51,17 +51,19 @@ PRIMARY = "#1d3f6e"
 """The primary star (deep navy)."""
 COMPANION = "#5b8fc7"
 """Every other component (mid blue)."""
-MOTION = "#b8572a"
-"""Proper-motion arrows (burnt orange)."""
+MOTION = "#6a4c93"
+"""Proper-motion arrows (violet: apart from the rust of optical pairs)."""
 
-BOUND = "#1d3f6e"
-"""Pair status ``bound`` (navy, solid line)."""
-CO_MOVING = "#2a8a7a"
-"""Pair status ``co-moving`` (teal, dashed line)."""
-OPTICAL = "#8d949c"
-"""Pair status ``optical`` (grey, dotted line)."""
-UNDETERMINED = "#a0762a"
-"""Pair status ``undetermined`` (ochre, dash-dot line)."""
+# The status colours are the pages' (templates/assets/style.css), darkened where a line on white needs
+# 3:1 contrast (co-moving), so a status reads the same in a badge and in a chart.
+BOUND = "#1d4f91"
+"""Pair status ``bound`` (blue, solid line)."""
+CO_MOVING = "#3a7fbf"
+"""Pair status ``co-moving`` (mid blue, dashed line)."""
+OPTICAL = "#9a3412"
+"""Pair status ``optical`` (rust, dotted line)."""
+UNDETERMINED = "#5f6b7a"
+"""Pair status ``undetermined`` (grey, dash-dot line)."""
 
 MEASUREMENT = "#1d3f6e"
 """A single measurement with its error bar."""
@@ -428,16 +430,23 @@ _ID = re.compile(r'\bid="([^"]+)"')
 _HREF = re.compile(r'(xlink:href|href)="#([^"]+)"')
 _URL = re.compile(r"url\(#([^)]+)\)")
 _FONT = re.compile(r"font-family: 'DejaVu Sans'(?=[;\"])")
+_XML_INVALID = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
+"""Characters XML 1.0 does not allow in text: never written into a label."""
+_QUOTES = {'"': "&quot;"}
 
 
-def to_svg(fig: Figure, *, title: str | None = None, description: str | None = None) -> str:
+def to_svg(fig: Figure, *, title: str | None = None, description: str | None = None, alt: str | None = None) -> str:
     """Serialise a figure to SVG text that is byte-identical across runs.
 
     The text is ready to inline in HTML: no XML prolog or DOCTYPE; every id
     carries a prefix derived from the figure's own content, so that several
     figures on one page never share an id; the stylesheet matplotlib writes
     is scoped to this figure; the root element has ``role="img"`` and, when
-    given, a ``<title>`` and ``<desc>`` for screen readers.
+    given, a ``<title>`` and ``<desc>`` for screen readers. With ``alt`` the
+    text alternative travels with the file: the root carries
+    ``aria-label="<alt>"`` and the ``<title>`` holds the alt text (the chart
+    title is drawn on the figure anyway), so every reader of the SVG, inlined
+    or standalone, gets the same name.
 
     Parameters
     ----------
@@ -447,6 +456,11 @@ def to_svg(fig: Figure, *, title: str | None = None, description: str | None = N
         Accessible name of the figure (``<title>``).
     description : str, optional
         Longer text alternative (``<desc>``).
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`): the
+        accessible name, as ``aria-label`` and ``<title>``; replaces ``title``
+        as the name. Escaped here; control characters and runs of white
+        space become one space.
 
     Returns
     -------
@@ -476,14 +490,20 @@ def to_svg(fig: Figure, *, title: str | None = None, description: str | None = N
 
     attributes = f' id="{root_id}" role="img"'
     children = ""
-    if title:
+    if alt:
+        # aria-label comes first in the accessible-name computation (the
+        # <title> would only be used without it); both hold the same text.
+        alt = " ".join(_XML_INVALID.sub(" ", alt).split())
+        attributes += f' aria-label="{escape(alt, _QUOTES)}"'
+        children += f'\n <title id="{prefix}title">{escape(alt)}</title>'
+    elif title:
         attributes += f' aria-labelledby="{prefix}title"'
         children += f'\n <title id="{prefix}title">{escape(title)}</title>'
     if description:
-        if not title:
+        if not title and not alt:
             attributes += f" aria-label={quoteattr(description)}"
         children += f'\n <desc id="{prefix}desc">{escape(description)}</desc>'
-        if title:
+        if title or alt:
             attributes += f' aria-describedby="{prefix}desc"'
     end_of_tag = body.index(">", body.index("<svg")) + 1
     body = body[: end_of_tag - 1] + attributes + ">" + children + body[end_of_tag:]

@@ -191,7 +191,8 @@ def detection_label(detection: Detection, *, with_band: bool = False) -> str:
     return f"{text} ({detection.band})" if with_band and detection.band else text
 
 
-def detection_map(detections: Sequence[Detection], limits: Sequence[SearchLimit], *, title: str) -> str:
+def detection_map(detections: Sequence[Detection], limits: Sequence[SearchLimit], *, title: str,
+                  alt: str | None = None) -> str:
     """Draw separation against contrast for the companion claims of one system, as SVG text.
 
     Parameters
@@ -202,6 +203,10 @@ def detection_map(detections: Sequence[Detection], limits: Sequence[SearchLimit]
         Searches that found nothing, with their sensitivity (may be empty).
     title : str
         Title over the chart and accessible name of the SVG.
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -215,7 +220,7 @@ def detection_map(detections: Sequence[Detection], limits: Sequence[SearchLimit]
         not a finite positive number.
     """
     fig = build_detection_map(detections, limits, title=title)
-    return common.to_svg(fig, title=title, description=_describe(detections, limits))
+    return common.to_svg(fig, title=title, description=_describe(detections, limits), alt=alt)
 
 
 def build_detection_map(detections: Sequence[Detection], limits: Sequence[SearchLimit], *, title: str) -> Figure:

@@ -147,7 +147,7 @@ def star_label(star: HRStar) -> str:
     return f"{star.id} ({star.label_extra})" if star.label_extra else star.id
 
 
-def hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title: str) -> str:
+def hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title: str, alt: str | None = None) -> str:
     """Draw the Hertzsprung–Russell diagram of one system as SVG text.
 
     Parameters
@@ -159,6 +159,10 @@ def hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title: str) 
         (may be empty).
     title : str
         Title over the chart and accessible name of the SVG.
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -175,7 +179,7 @@ def hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title: str) 
     """
     stars = _unknown_as_nan(stars)
     fig = build_hr_diagram(stars, lines, title=title)
-    return common.to_svg(fig, title=title, description=_describe(stars, lines))
+    return common.to_svg(fig, title=title, description=_describe(stars, lines), alt=alt)
 
 
 def build_hr_diagram(stars: Sequence[HRStar], lines: Sequence[HRLine], *, title: str) -> Figure:

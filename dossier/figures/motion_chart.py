@@ -151,6 +151,7 @@ def motion_chart(
     *,
     title: str,
     residual_model: str | None,
+    alt: str | None = None,
 ) -> str:
     """Draw θ and ρ of one pair against time, with residual panels, as SVG text.
 
@@ -165,6 +166,10 @@ def motion_chart(
     residual_model : str or None
         Label of the curve to compute residuals against; ``None`` draws no
         residual panels.
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -178,7 +183,7 @@ def motion_chart(
         malformed, or ``residual_model`` names no curve.
     """
     fig = build_motion_chart(series, curves, title=title, residual_model=residual_model)
-    return common.to_svg(fig, title=title, description=_describe(series, curves, residual_model))
+    return common.to_svg(fig, title=title, description=_describe(series, curves, residual_model), alt=alt)
 
 
 def build_motion_chart(

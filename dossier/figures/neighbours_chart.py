@@ -125,6 +125,7 @@ def neighbours_chart(
     *,
     title: str,
     velocity_points: Sequence[VelocityPoint] | None = None,
+    alt: str | None = None,
 ) -> str:
     """Draw the proper motions (and velocities) of a system and its neighbours as SVG text.
 
@@ -138,6 +139,10 @@ def neighbours_chart(
         ``(id, U, V, sigma_U, sigma_V)`` in km/s for the stars that have
         space velocities; each id must be among ``points``. When given (and
         not empty), a second panel shows U against V.
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -153,7 +158,7 @@ def neighbours_chart(
     """
     points, velocities = _unknown_as_nan(points, velocity_points)
     fig = build_neighbours_chart(points, title=title, velocity_points=velocities)
-    return common.to_svg(fig, title=title, description=_describe(points, velocities))
+    return common.to_svg(fig, title=title, description=_describe(points, velocities), alt=alt)
 
 
 def build_neighbours_chart(

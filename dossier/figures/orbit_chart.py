@@ -124,6 +124,7 @@ def orbit_chart(
     title: str,
     primary: str,
     secondary: str,
+    alt: str | None = None,
 ) -> str:
     """Draw the apparent relative orbit of one pair as SVG text.
 
@@ -137,6 +138,10 @@ def orbit_chart(
         Title over the chart and accessible name of the SVG.
     primary, secondary : str
         Component ids, for the key (for example ``"A"`` and ``"B"``).
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -150,7 +155,7 @@ def orbit_chart(
         coordinates differ in length, or a value is not finite.
     """
     fig = build_orbit_chart(measures, curves, title=title, primary=primary, secondary=secondary)
-    return common.to_svg(fig, title=title, description=_describe(measures, curves, primary, secondary))
+    return common.to_svg(fig, title=title, description=_describe(measures, curves, primary, secondary), alt=alt)
 
 
 def build_orbit_chart(

@@ -119,7 +119,7 @@ def source_label(source: ParallaxSource, *, discordant: bool = False) -> str:
     return f"{text} · discordant" if discordant else text
 
 
-def parallax_chart(rows: list[ParallaxRow], *, title: str) -> str:
+def parallax_chart(rows: list[ParallaxRow], *, title: str, alt: str | None = None) -> str:
     """Draw the parallax chart of one system as SVG text.
 
     Parameters
@@ -128,6 +128,10 @@ def parallax_chart(rows: list[ParallaxRow], *, title: str) -> str:
         One per component, drawn top to bottom.
     title : str
         Title over the chart and accessible name of the SVG.
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -141,7 +145,7 @@ def parallax_chart(rows: list[ParallaxRow], *, title: str) -> str:
         its row.
     """
     fig = build_parallax_chart(rows, title=title)
-    return common.to_svg(fig, title=title, description=_describe(rows))
+    return common.to_svg(fig, title=title, description=_describe(rows), alt=alt)
 
 
 def build_parallax_chart(rows: Sequence[ParallaxRow], *, title: str) -> Figure:

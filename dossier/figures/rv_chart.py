@@ -185,6 +185,7 @@ def rv_chart(
     *,
     title: str,
     time_label: str = "JD − 2400000",
+    alt: str | None = None,
 ) -> str:
     """Draw the radial velocities of one star against time (and phase), with residuals, as SVG text.
 
@@ -199,6 +200,10 @@ def rv_chart(
         Title over the chart and accessible name of the SVG.
     time_label : str
         Label of the time axis, naming the scale of the times (days).
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -212,7 +217,7 @@ def rv_chart(
         negative, or the model is malformed.
     """
     fig = build_rv_chart(points, model, title=title, time_label=time_label)
-    return common.to_svg(fig, title=title, description=_describe(points, model))
+    return common.to_svg(fig, title=title, description=_describe(points, model), alt=alt)
 
 
 def build_rv_chart(
@@ -506,6 +511,7 @@ def periodogram_chart(
     best_period: float | None,
     fap: float | None,
     title: str,
+    alt: str | None = None,
 ) -> str:
     """Draw a periodogram, power against trial period, as SVG text.
 
@@ -523,6 +529,10 @@ def periodogram_chart(
         ``best_period``.
     title : str
         Title over the chart and accessible name of the SVG.
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -541,7 +551,7 @@ def periodogram_chart(
     if best_period is not None:
         description += f" Best period {best_period:g} d" + (f", false-alarm probability {fap:g}." if fap is not None
                                                            else ".")
-    return common.to_svg(fig, title=title, description=description)
+    return common.to_svg(fig, title=title, description=description, alt=alt)
 
 
 def build_periodogram_chart(

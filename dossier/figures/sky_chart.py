@@ -144,6 +144,7 @@ def sky_chart(
     *,
     title: str,
     arrow_years: float | None = None,
+    alt: str | None = None,
 ) -> str:
     """Draw the sky chart of one system as SVG text.
 
@@ -161,6 +162,10 @@ def sky_chart(
         so that the longest arrow is about a quarter of the chart span. Not
         used on a symlog chart, where arrows are proper-motion vectors at one
         common scale (see the module notes).
+    alt : str, optional
+        Short text alternative (see :mod:`dossier.figures.alt`), written as
+        the SVG's ``aria-label`` and ``<title>``; without it the title names
+        the SVG.
 
     Returns
     -------
@@ -174,7 +179,7 @@ def sky_chart(
         status, or ``arrow_years`` is not positive.
     """
     fig = build_sky_chart(stars, pairs, title=title, arrow_years=arrow_years)
-    return common.to_svg(fig, title=title, description=_describe(stars, pairs))
+    return common.to_svg(fig, title=title, description=_describe(stars, pairs), alt=alt)
 
 
 def build_sky_chart(

@@ -63,6 +63,15 @@ def _direction(a: Assessment, status: str) -> int:
     return 0
 
 
+def strongest(assessments: list[Assessment], status: str) -> tuple[Assessment | None, Assessment | None]:
+    """The assessment with the largest |log10 likelihood ratio| for the status, and the one against it."""
+    def pick(direction: int) -> Assessment | None:
+        found = [a for a in assessments if _direction(a, status) == direction and a.strength is not None]
+        return max(found, key=lambda a: abs(a.strength), default=None)  # first of equals: registry order
+
+    return pick(1), pick(-1)
+
+
 def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings) -> Verdict:
     assoc = [a for a in assessments if a.question in ("association", "orbit") and a.strength is not None]
     binding = [a for a in assessments if a.question in ("binding", "orbit") and a.strength is not None]
