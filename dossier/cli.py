@@ -191,6 +191,44 @@ from dossier.cli_log import log as _log; cli.add_command(_log)
 from dossier.cli_release import diff as _diff, release as _release; cli.add_command(_release); cli.add_command(_diff)
 
 
+@cli.command()
+@click.argument("pairs", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, path_type=Path),
+              help="Result table: .csv or .parquet (written only when every pair was screened).")
+@click.option("--map", "mapping", multiple=True, metavar="COLUMN=FIELD", help="Read COLUMN as FIELD (repeatable).")
+@click.option("--settings", "settings_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="A dossier.toml whose verdict thresholds, rule settings and field-star densities to use.")
+@click.option("--chunk", "chunk_rows", type=click.IntRange(min=1000), default=250_000, show_default=True,
+              help="Pairs per chunk: memory grows with it.")
+def screen(pairs: Path, out_path: Path, mapping: tuple[str, ...], settings_path: Path | None, chunk_rows: int) -> None:
+    """Screen a table of candidate pairs (CSV or Parquet) with the pair rules and the verdict."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+
+    from dossier.screen import parse_map, screen as run_screen
+
+    settings = None
+    if settings_path is not None:
+        settings, problems = load_settings_file(settings_path)
+        if problems:
+            raise ProblemsFound(problems)
+    names = parse_map(mapping)
+    with Progress("[progress.description]{task.description}", BarColumn(), MofNCompleteColumn(),
+                  TimeElapsedColumn(), transient=True) as bar:
+        task = bar.add_task("screening pairs", total=None)
+        n = run_screen(pairs, out_path, names, settings, chunk_rows, progress=lambda k: bar.advance(task, k))
+    click.echo(f"screened {n} pair(s) into {out_path}")
+
+
+def load_settings_file(path: Path):
+    """Settings from a dossier.toml anywhere (its folder is treated as the project)."""
+    from dossier.schema.loader import SETTINGS_FILE, load_settings
+
+    if path.name != SETTINGS_FILE:
+        raise DossierError(f"--settings {path}: expected a file named {SETTINGS_FILE}. Fix: give a project's "
+                           f"{SETTINGS_FILE}.")
+    return load_settings(path.parent)
+
+
 @cli.command(name="plan")
 @project_arg
 @click.option("--site", "site_text", required=True, metavar="LAT,LON,HEIGHT",

@@ -47,6 +47,10 @@ OUTCOME_WORDS: dict[str, str] = {
     "error": "rule failed",
 }
 
+#: Outcome codes of the rules' vectorised kernels (int8 arrays), and back: ``OUTCOME_NAMES[code + 2]``.
+OUTCOME_CODES: dict[str, int] = {"supports": 1, "neutral": 0, "against": -1, "insufficient": -2}
+OUTCOME_NAMES: tuple[str, ...] = ("insufficient", "against", "neutral", "supports")
+
 
 class RuleSettings(BaseModel):
     """Base of every rule's settings table in ``dossier.toml``."""

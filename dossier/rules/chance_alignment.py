@@ -25,8 +25,8 @@ Outcome
     ``neutral`` between.
 
 Insufficient data
-    No separation, no density table, or no magnitude of the fainter member
-    in a band of the table.
+    No separation (or a separation of zero), no density table, or no
+    magnitude of the fainter member in a band of the table.
 """
 
 from __future__ import annotations
@@ -37,7 +37,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import chance
-from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
+from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
 
@@ -46,6 +46,82 @@ class Settings(RuleSettings):
         default=0.1, gt=0, lt=10, description="Physical companions per star per decade of separation."
     )
     decisive: float = Field(default=0.5, gt=0)
+
+
+_FLOAT_KEYS = ("strength", "statistic", "density", "expected", "p_chance")
+
+
+def kernel(rho_arcsec: np.ndarray, magnitude: np.ndarray, settings: Settings, length_scale_kpc: float = 1.35, *,
+           table_magnitudes: np.ndarray, table_densities: np.ndarray,
+           table_density_errors: np.ndarray | None = None) -> dict[str, np.ndarray]:
+    """The rule's numbers for many pairs at once; :func:`weigh` calls it with one pair.
+
+    Parameters
+    ----------
+    rho_arcsec : ndarray, shape (n,)
+        Separation, arcsec; NaN when unknown.
+    magnitude : ndarray, shape (n,)
+        The companion's (fainter member's) magnitude in the band of the table; NaN when unknown.
+    settings
+        The rule's settings.
+    length_scale_kpc
+        Not used: accepted so that every rule's kernel is called alike.
+    table_magnitudes, table_densities : ndarray, shape (k,)
+        One band's field-density table: limiting magnitudes and stars per square degree brighter
+        than each (any order; sorted here, as :func:`weigh` sorts the rows). Empty: insufficient
+        everywhere. Interpolated by :func:`dossier.astro.chance.density_at_magnitude`, which
+        raises ``ValueError`` for repeated magnitudes or densities that are not positive.
+    table_density_errors : ndarray, shape (k,), optional
+        The densities' 1σ uncertainties; when given, the largest relative one scales the
+        ``*_uncertainty`` results, as in the assessment's quantities.
+
+    Returns
+    -------
+    dict of ndarray, shape (n,)
+        ``outcome`` (int8, :data:`~dossier.rules.base.OUTCOME_CODES`; insufficient where ρ or the
+        magnitude is missing or not finite, the table is empty, or λ = 0, e.g. ρ = 0),
+        ``strength`` (log10 ratio of physical to optical companion densities at ρ), ``statistic``
+        and ``p_chance`` (P_chance), ``density`` (Σ, deg⁻²), ``expected`` (λ) and ``extrapolated``
+        (bool: the magnitude lies outside the table); NaN where insufficient. With
+        ``table_density_errors``: ``density_uncertainty``, ``expected_uncertainty`` and
+        ``p_chance_uncertainty`` too.
+    """
+    rho, mag = np.broadcast_arrays(*(np.atleast_1d(np.asarray(v, dtype=float)) for v in (rho_arcsec, magnitude)))
+    if rho.ndim != 1:
+        raise ValueError(f"kernel inputs have shape {rho.shape}. Fix: pass 1-D arrays, one value per pair.")
+    tm = np.asarray(table_magnitudes, dtype=float).ravel()
+    td = np.asarray(table_densities, dtype=float).ravel()
+    n = rho.size
+    out = {k: np.full(n, np.nan) for k in _FLOAT_KEYS}
+    extrapolated = np.zeros(n, dtype=bool)
+    usable = np.zeros(n, dtype=bool)
+    rel_err = np.nan
+    if tm.size:
+        order = np.argsort(tm, kind="stable")
+        tm, td = tm[order], td[order]
+        if table_density_errors is not None:
+            rel_err = float(np.max(np.asarray(table_density_errors, dtype=float).ravel()[order] / td))
+        known = np.isfinite(rho) & np.isfinite(mag)
+        with np.errstate(all="ignore"):
+            density_deg, extrap = chance.density_at_magnitude(mag, tm, td)
+            sigma_arcsec = chance.per_sq_deg_to_per_sq_arcsec(density_deg)
+            # Python's rho**2 (C pow) for λ, numpy's square inside chance_alignment_probability: as before
+            lam = math.pi * np.float_power(rho, 2.0) * sigma_arcsec
+            p = chance.chance_alignment_probability(rho, sigma_arcsec)
+            strength = np.log10(settings.companion_rate_per_decade / (2 * math.log(10) * lam))
+        usable = known & (lam > 0)
+        extrapolated = np.asarray(extrap, dtype=bool) & usable
+        for key, value in (("strength", strength), ("statistic", p), ("density", density_deg), ("expected", lam),
+                           ("p_chance", p)):
+            out[key] = np.where(usable, value, np.nan)
+    outcome = np.select([out["strength"] > settings.decisive, out["strength"] < -settings.decisive],
+                        [OUTCOME_CODES["supports"], OUTCOME_CODES["against"]], OUTCOME_CODES["neutral"]).astype(np.int8)
+    outcome[~usable] = OUTCOME_CODES["insufficient"]
+    result = {"outcome": outcome, **out, "extrapolated": extrapolated}
+    if table_density_errors is not None:
+        for key in ("density", "expected", "p_chance"):
+            result[f"{key}_uncertainty"] = out[key] * rel_err
+    return result
 
 
 def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
@@ -64,29 +140,33 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     faint = a if a.magnitudes[band].value > b.magnitudes[band].value else b
     mag = faint.magnitudes[band].value
     rows = sorted((r for r in table if r.band == band), key=lambda r: r.brighter_than)
-    density_deg, extrapolated = chance.density_at_magnitude(
-        mag, [r.brighter_than for r in rows], [r.per_square_degree.value for r in rows]
-    )
-    rel_err = max(r.per_square_degree.uncertainty / r.per_square_degree.value for r in rows)
-    sigma_arcsec = float(chance.per_sq_deg_to_per_sq_arcsec(density_deg))
-    lam = math.pi * pair.rho_arcsec**2 * sigma_arcsec
-    p = float(chance.chance_alignment_probability(pair.rho_arcsec, sigma_arcsec))
-    strength = math.log10(settings.companion_rate_per_decade / (2 * math.log(10) * lam))
-    outcome = "supports" if strength > settings.decisive else "against" if strength < -settings.decisive else "neutral"
-    text = (f"With {float(density_deg):.3g} stars per square degree brighter than {band} = {mag:.2f}, an unrelated star "
+    k = kernel(np.array([pair.rho_arcsec]), np.array([mag]), settings, facts.length_scale_kpc,
+               table_magnitudes=np.array([r.brighter_than for r in rows]),
+               table_densities=np.array([r.per_square_degree.value for r in rows]),
+               table_density_errors=np.array([r.per_square_degree.uncertainty for r in rows]))
+    outcome = int(k["outcome"][0])
+    if outcome == OUTCOME_CODES["insufficient"]:
+        return RULE.insufficient(subject, f"No expected number of unrelated stars within ρ = "
+                                 f"{pair.rho_arcsec:.2f}″: the separation is zero, or it or the companion's "
+                                 "magnitude is not a number.")
+    density_deg, lam, p = float(k["density"][0]), float(k["expected"][0]), float(k["p_chance"][0])
+    strength = float(k["strength"][0])
+    text = (f"With {density_deg:.3g} stars per square degree brighter than {band} = {mag:.2f}, an unrelated star "
             f"within {pair.rho_arcsec:.2f}″ has probability {p:.2g}; physical companions are {10**strength:.2g} times "
             "as dense as optical ones at this separation.")
-    if bool(np.any(extrapolated)):
+    if bool(k["extrapolated"][0]):
         text += " The density was extrapolated beyond the table."
     refs = [r.per_square_degree.ref or r.ref for r in rows]
+    p_err = float(k["p_chance_uncertainty"][0])
     return RULE.assessment(
-        subject, outcome, text, strength=strength,
-        statistic=Quantity("p_chance", "P(chance alignment)", p, "", p * rel_err),
+        subject, OUTCOME_NAMES[outcome + 2], text, strength=strength,
+        statistic=Quantity("p_chance", "P(chance alignment)", p, "", p_err),
         quantities=(
-            Quantity("density", f"Field stars brighter than {band} = {mag:.2f}", float(density_deg), "deg⁻²",
-                     float(density_deg) * rel_err),
-            Quantity("expected", "Expected unrelated stars within ρ (λ)", lam, "", lam * rel_err),
-            Quantity("p_chance", "P(chance alignment)", p, "", p * rel_err, how="1 − exp(−π ρ² Σ)"),
+            Quantity("density", f"Field stars brighter than {band} = {mag:.2f}", density_deg, "deg⁻²",
+                     float(k["density_uncertainty"][0])),
+            Quantity("expected", "Expected unrelated stars within ρ (λ)", lam, "",
+                     float(k["expected_uncertainty"][0])),
+            Quantity("p_chance", "P(chance alignment)", p, "", p_err, how="1 − exp(−π ρ² Σ)"),
         ),
         sources=tuple(dict.fromkeys(r for r in refs if r)),
     )

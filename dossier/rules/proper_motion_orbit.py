@@ -35,10 +35,12 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
 from pydantic import Field
 
 from dossier.astro import binary, binding
-from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
+from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
 
@@ -51,11 +53,17 @@ class Settings(RuleSettings):
 
 
 STRENGTH_LIMIT = 99.0
+# ln ratios beyond ±99 ln 10 are clipped to ±99 anyway: the binding kernels may settle them without quadrature.
+LN_STRENGTH_LIMIT = STRENGTH_LIMIT * math.log(10)
 
 
-def binding_strength(log_lr: float) -> tuple[float, float]:
-    """log10 likelihood ratio (clipped to ±99 for display and JSON) and P(bound) at even prior odds."""
-    strength = max(-STRENGTH_LIMIT, min(STRENGTH_LIMIT, log_lr / math.log(10)))
+def binding_strength(log_lr: NDArray) -> tuple[NDArray, NDArray]:
+    """log10 likelihood ratios (clipped to ±99 for display and JSON) and P(bound) at even prior odds.
+
+    As the scalar ``max(-99, min(99, x))`` did, a NaN ratio becomes +99.
+    """
+    x = log_lr / math.log(10)
+    strength = np.where(np.isnan(x), STRENGTH_LIMIT, np.clip(x, -STRENGTH_LIMIT, STRENGTH_LIMIT))
     return strength, 1.0 / (1.0 + 10.0 ** (-strength))
 
 
@@ -68,8 +76,101 @@ def lr_text(strength: float) -> str:
     return f"10^{strength:.1f}"
 
 
-def outcome_of(strength: float, decisive: float) -> str:
-    return "supports" if strength > decisive else "against" if strength < -decisive else "neutral"
+def outcome_codes(strength: NDArray, decisive: float) -> NDArray:
+    """Outcome codes (:data:`~dossier.rules.base.OUTCOME_CODES`) of binding strengths."""
+    return np.where(strength > decisive, OUTCOME_CODES["supports"],
+                    np.where(strength < -decisive, OUTCOME_CODES["against"], OUTCOME_CODES["neutral"])).astype(np.int8)
+
+
+def python_square(x: NDArray) -> NDArray:
+    """``x ** 2`` as Python computes it for a float (the C library's ``pow``); numpy's ``x ** 2`` is
+    ``x * x``, which differs from it in the last bit for about 0.1 % of inputs. numpy's ``power`` with an
+    array exponent calls that ``pow``, except on CPUs where it uses its own AVX-512 ``pow``."""
+    return np.power(x, np.full_like(x, 2.0))
+
+
+def columns(*arrays: ArrayLike) -> tuple[list[NDArray], NDArray]:
+    """The arguments of a kernel as float64 arrays of one shape, and where none of them is NaN (missing)."""
+    cols = [np.asarray(a, dtype=float) for a in arrays]
+    shape = np.broadcast_shapes(*(c.shape for c in cols))
+    cols = [np.broadcast_to(c, shape) for c in cols]
+    complete = np.ones(shape, dtype=bool)
+    for c in cols:
+        complete &= ~np.isnan(c)
+    return cols, complete
+
+
+def unfilled(shape: tuple[int, ...], names: tuple[str, ...]) -> dict[str, NDArray]:
+    """A kernel's result before any pair is weighed: every pair insufficient, every number NaN."""
+    out: dict[str, NDArray] = {"outcome": np.full(shape, OUTCOME_CODES["insufficient"], dtype=np.int8)}
+    out.update({name: np.full(shape, np.nan) for name in names})
+    return out
+
+
+KERNEL_KEYS = ("outcome", "strength", "statistic", "delta_pm", "delta_pm_uncertainty", "orbit_limit",
+               "escape_limit", "p_bound", "within_limit")
+
+
+def kernel(pmra1: ArrayLike, pmra_error1: ArrayLike, pmdec1: ArrayLike, pmdec_error1: ArrayLike,
+           pmra2: ArrayLike, pmra_error2: ArrayLike, pmdec2: ArrayLike, pmdec_error2: ArrayLike,
+           separation_arcsec: ArrayLike, parallax_mas: ArrayLike, total_mass_msun: ArrayLike,
+           settings: Settings) -> dict[str, NDArray]:
+    """The rule's numbers for many pairs at once.
+
+    Parameters
+    ----------
+    pmra1, pmra_error1, pmdec1, pmdec_error1, pmra2, pmra_error2, pmdec2, pmdec_error2 : array_like
+        Proper motions of the two members and their 1σ errors, mas/yr (RA component × cos δ).
+    separation_arcsec : array_like
+        Separation of the pair, arcsec.
+    parallax_mas : array_like
+        Parallax of the pair, mas (``SystemFacts.pair_parallax``).
+    total_mass_msun : array_like
+        Total mass of the pair, solar masses.
+    settings : Settings
+        The rule's settings.
+
+    All of one shape (or broadcastable); NaN means missing.
+
+    Returns
+    -------
+    dict of ndarray
+        ``outcome`` (int8, :data:`~dossier.rules.base.OUTCOME_CODES`; −2 where an input is NaN),
+        ``strength`` (log10 likelihood ratio bound : unbound, clipped to ±99), ``statistic``
+        (Δμ / Δμ_orbit), ``delta_pm`` and ``delta_pm_uncertainty`` (Δμ and σ_Δμ, mas/yr),
+        ``orbit_limit`` and ``escape_limit`` (mas/yr), ``p_bound`` (P(bound) at even odds) and
+        ``within_limit`` (bool: Δμ < Δμ_orbit + acceptance_sigma σ_Δμ); NaN (False) where insufficient.
+    """
+    cols, complete = columns(pmra1, pmra_error1, pmdec1, pmdec_error1, pmra2, pmra_error2, pmdec2, pmdec_error2,
+                             separation_arcsec, parallax_mas, total_mass_msun)
+    with np.errstate(invalid="ignore"):
+        # no orbital speed without a distance and a mass: a parallax ≤ 0 (valid data of a distant star) or
+        # a mass ≤ 0 leaves the test undecided instead of dividing by zero or reading NaN as "bound"
+        complete = complete & (cols[9] > 0) & (cols[10] > 0)
+    out = unfilled(complete.shape, KERNEL_KEYS[1:-1])
+    out["within_limit"] = np.zeros(complete.shape, dtype=bool)
+    if not complete.any():
+        return out
+    rows = ... if complete.all() else complete  # every pair complete: views, no copies
+    ra1, era1, dec1, edec1, ra2, era2, dec2, edec2, rho, plx, mass = (c[rows] for c in cols)
+    d_ra, d_dec = ra1 - ra2, dec1 - dec2
+    var_ra = python_square(era1) + python_square(era2)
+    var_dec = python_square(edec1) + python_square(edec2)
+    dmu = binary.python_hypot(d_ra, d_dec)
+    sigma = binary.sigma_delta_mu(d_ra, d_dec, var_ra, var_dec)
+    orbit = binary.delta_mu_orbit(mass, plx, rho)
+    escape = binary.delta_mu_escape(mass, plx, rho)
+    d_kpc = 1.0 / plx
+    group = settings.group_dispersion_kms / (binary.KM_S_PER_AU_YR * d_kpc)
+    sigma_axis = np.sqrt((var_ra + var_dec) / 2)
+    strength, p_bound = binding_strength(binding.log_lr_bound_planar(dmu, sigma_axis, escape, group,
+                                                                     beyond=LN_STRENGTH_LIMIT))
+    for name, value in (("outcome", outcome_codes(strength, settings.decisive)), ("strength", strength),
+                        ("statistic", dmu / orbit), ("delta_pm", dmu), ("delta_pm_uncertainty", sigma),
+                        ("orbit_limit", orbit), ("escape_limit", escape), ("p_bound", p_bound),
+                        ("within_limit", dmu < orbit + settings.acceptance_sigma * sigma)):
+        out[name][rows] = value
+    return out
 
 
 def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
@@ -89,19 +190,20 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     if pair.first == pair.second:
         return RULE.insufficient(subject, f"Both members are represented by {pair.first}.")
     assert a.motion and b.motion and plx and mass and pair.rho_arcsec
-    d_ra, d_dec = a.motion.pmra - b.motion.pmra, a.motion.pmdec - b.motion.pmdec
-    var_ra = a.motion.pmra_error**2 + b.motion.pmra_error**2
-    var_dec = a.motion.pmdec_error**2 + b.motion.pmdec_error**2
-    dmu = math.hypot(d_ra, d_dec)
-    sigma = float(binary.sigma_delta_mu(d_ra, d_dec, var_ra, var_dec))
-    orbit = float(binary.delta_mu_orbit(mass[0], plx[0], pair.rho_arcsec))
-    escape = float(binary.delta_mu_escape(mass[0], plx[0], pair.rho_arcsec))
-    d_kpc = 1.0 / plx[0]
-    group = settings.group_dispersion_kms / (binary.KM_S_PER_AU_YR * d_kpc)
-    sigma_axis = math.sqrt((var_ra + var_dec) / 2)
-    strength, p_bound = binding_strength(float(binding.log_lr_bound_planar(dmu, sigma_axis, escape, group)))
-    outcome = outcome_of(strength, settings.decisive)
-    el_badry = dmu < orbit + settings.acceptance_sigma * sigma
+    one = kernel(*([v] for v in (a.motion.pmra, a.motion.pmra_error, a.motion.pmdec, a.motion.pmdec_error,
+                                 b.motion.pmra, b.motion.pmra_error, b.motion.pmdec, b.motion.pmdec_error,
+                                 pair.rho_arcsec, plx[0], mass[0])), settings=settings)
+    if one["outcome"][0] == OUTCOME_CODES["insufficient"]:
+        return RULE.insufficient(subject, "Needs a positive parallax and total mass (a parallax ≤ 0 gives no "
+                                          "distance to scale the orbital motion), and proper motions and a "
+                                          "separation that are numbers.")
+    if one["orbit_limit"][0] == 0.0:
+        raise ZeroDivisionError("float division by zero")  # as the scalar formulas did: the rule fails
+    dmu, sigma, orbit, escape, strength, p_bound = (
+        float(one[k][0]) for k in ("delta_pm", "delta_pm_uncertainty", "orbit_limit", "escape_limit", "strength",
+                                   "p_bound"))
+    outcome = OUTCOME_NAMES[int(one["outcome"][0]) + 2]
+    el_badry = bool(one["within_limit"][0])
     text = (f"Δμ = {dmu:.3f} ± {sigma:.3f} mas/yr against {orbit:.3f} mas/yr for a circular orbit of {mass[0]:.2f} M☉ "
             f"at {pair.rho_arcsec:.2f}″ and {escape:.3f} mas/yr for escape: "
             + ("within the El-Badry et al. limit" if el_badry else "beyond the El-Badry et al. limit")
@@ -119,7 +221,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     )
     return RULE.assessment(
         subject, outcome, text, strength=strength, probability=p_bound,
-        statistic=Quantity("ratio", "Δμ / Δμ_orbit", dmu / orbit, ""), quantities=quantities,
+        statistic=Quantity("ratio", "Δμ / Δμ_orbit", float(one["statistic"][0]), ""), quantities=quantities,
         sources=tuple(dict.fromkeys((a.motion.ref, b.motion.ref, *mass[2]))),
     )
 

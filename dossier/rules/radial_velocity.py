@@ -29,20 +29,82 @@ Insufficient data
 
 from __future__ import annotations
 
-import math
-
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
 from pydantic import Field
 
 from dossier.astro import binary, binding
-from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
+from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
-from dossier.rules.proper_motion_orbit import binding_strength, lr_text, outcome_of
+from dossier.rules.proper_motion_orbit import (
+    LN_STRENGTH_LIMIT,
+    binding_strength,
+    columns,
+    lr_text,
+    outcome_codes,
+    python_square,
+    unfilled,
+)
 
 
 class Settings(RuleSettings):
     systematic_kms: float = Field(default=0.5, ge=0, description="Systematic allowance between two stars' RVs (km/s).")
     group_dispersion_kms: float = Field(default=1.0, gt=0, description="Per-axis dispersion of unbound group members (km/s).")
     decisive: float = Field(default=0.5, gt=0)
+
+
+KERNEL_KEYS = ("outcome", "strength", "statistic", "delta_rv", "delta_rv_uncertainty", "projected_separation",
+               "circular_speed", "escape_speed", "p_bound")
+
+
+def kernel(rv1: ArrayLike, rv_error1: ArrayLike, rv2: ArrayLike, rv_error2: ArrayLike, separation_arcsec: ArrayLike,
+           distance_pc: ArrayLike, total_mass_msun: ArrayLike, settings: Settings) -> dict[str, NDArray]:
+    """The rule's numbers for many pairs at once.
+
+    Parameters
+    ----------
+    rv1, rv_error1, rv2, rv_error2 : array_like
+        Radial velocities of the two members and their 1σ errors, km/s.
+    separation_arcsec : array_like
+        Separation of the pair, arcsec.
+    distance_pc : array_like
+        Distance of the pair, pc: the median of its posterior (``SystemFacts.pair_distance_pc``,
+        the middle value).
+    total_mass_msun : array_like
+        Total mass of the pair, solar masses.
+    settings : Settings
+        The rule's settings.
+
+    All of one shape (or broadcastable); NaN means missing.
+
+    Returns
+    -------
+    dict of ndarray
+        ``outcome`` (int8, :data:`~dossier.rules.base.OUTCOME_CODES`; −2 where an input is NaN),
+        ``strength`` (log10 likelihood ratio bound : unbound, clipped to ±99), ``statistic``
+        (|ΔRV| / σ), ``delta_rv`` and ``delta_rv_uncertainty`` (km/s, σ with the systematic
+        allowance), ``projected_separation`` (au), ``circular_speed`` and ``escape_speed`` (km/s)
+        and ``p_bound`` (P(bound) at even odds); NaN where insufficient.
+    """
+    cols, complete = columns(rv1, rv_error1, rv2, rv_error2, separation_arcsec, distance_pc, total_mass_msun)
+    out = unfilled(complete.shape, KERNEL_KEYS[1:])
+    if not complete.any():
+        return out
+    rows = ... if complete.all() else complete  # every pair complete: views, no copies
+    v1, e1, v2, e2, rho, dist, mass = (c[rows] for c in cols)
+    diff = v1 - v2
+    sigma = np.sqrt(python_square(e1) + python_square(e2) + settings.systematic_kms**2)
+    s_au = rho * dist
+    v_c = binary.circular_speed_kms(mass, s_au)
+    v_esc = binary.escape_speed_kms(mass, s_au)
+    strength, p_bound = binding_strength(binding.log_lr_bound_line(diff, sigma, v_esc, settings.group_dispersion_kms,
+                                                                   beyond=LN_STRENGTH_LIMIT))
+    for name, value in (("outcome", outcome_codes(strength, settings.decisive)), ("strength", strength),
+                        ("statistic", np.abs(diff) / sigma), ("delta_rv", diff), ("delta_rv_uncertainty", sigma),
+                        ("projected_separation", s_au), ("circular_speed", v_c), ("escape_speed", v_esc),
+                        ("p_bound", p_bound)):
+        out[name][rows] = value
+    return out
 
 
 def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
@@ -62,15 +124,17 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     if pair.first == pair.second:
         return RULE.insufficient(subject, f"Both members are represented by {pair.first}.")
     assert a.radial_velocity and b.radial_velocity and dist and mass and pair.rho_arcsec
-    diff = a.radial_velocity.value - b.radial_velocity.value
-    sigma = math.sqrt(a.radial_velocity.uncertainty**2 + b.radial_velocity.uncertainty**2 + settings.systematic_kms**2)
-    s_au = pair.rho_arcsec * dist[1]
-    v_c = float(binary.circular_speed_kms(mass[0], s_au))
-    v_esc = float(binary.escape_speed_kms(mass[0], s_au))
-    strength, p_bound = binding_strength(
-        float(binding.log_lr_bound_line(diff, sigma, v_esc, settings.group_dispersion_kms))
-    )
-    outcome = outcome_of(strength, settings.decisive)
+    one = kernel(*([v] for v in (a.radial_velocity.value, a.radial_velocity.uncertainty, b.radial_velocity.value,
+                                 b.radial_velocity.uncertainty, pair.rho_arcsec, dist[1], mass[0])), settings=settings)
+    if one["outcome"][0] == OUTCOME_CODES["insufficient"]:
+        return RULE.insufficient(subject, "Needs numbers: a radial velocity, the distance, the separation or the total "
+                                          "mass is not a number.")
+    if one["delta_rv_uncertainty"][0] == 0.0:
+        raise ZeroDivisionError("float division by zero")  # as the scalar formulas did: the rule fails
+    diff, sigma, s_au, v_c, v_esc, strength, p_bound = (
+        float(one[k][0]) for k in ("delta_rv", "delta_rv_uncertainty", "projected_separation", "circular_speed",
+                                   "escape_speed", "strength", "p_bound"))
+    outcome = OUTCOME_NAMES[int(one["outcome"][0]) + 2]
     text = (f"ΔRV = {diff:+.2f} ± {sigma:.2f} km/s against a circular speed of {v_c:.2f} km/s and an escape speed of "
             f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au: likelihood ratio bound : unbound {lr_text(strength)}.")
     for star in (a, b):
@@ -83,7 +147,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     refs = [r for r in (a.radial_velocity.ref, b.radial_velocity.ref) if r]
     return RULE.assessment(
         subject, outcome, text, strength=strength, probability=p_bound,
-        statistic=Quantity("z", "|ΔRV| / σ", abs(diff) / sigma, "σ"),
+        statistic=Quantity("z", "|ΔRV| / σ", float(one["statistic"][0]), "σ"),
         quantities=(
             Quantity("delta_rv", "Radial-velocity difference", diff, "km/s", sigma),
             Quantity("projected_separation", "Projected separation", s_au, "au"),

@@ -40,13 +40,59 @@ Reasons
 
 from __future__ import annotations
 
+import numpy as np
+
 from dossier.fmt import p_statement
 from dossier.rules.base import Assessment, Verdict
 from dossier.schema.settings import VerdictSettings
 
+#: Status names by the codes :func:`combine_arrays` returns.
+STATUSES = ("bound", "co-moving", "optical", "undetermined")
 
-def _p_from_log_odds(x: float) -> float:
-    return 1.0 / (1.0 + 10.0 ** (-x)) if x > -300 else 0.0
+
+def _p_from_log_odds(x: np.ndarray) -> np.ndarray:
+    with np.errstate(over="ignore"):
+        return np.where(x > -300, 1.0 / (1.0 + np.power(10.0, -np.maximum(x, -300))), 0.0)
+
+
+def combine_arrays(association: np.ndarray, binding: np.ndarray, settings: VerdictSettings) -> dict[str, np.ndarray]:
+    """The verdicts of many pairs at once, from their strengths.
+
+    Parameters
+    ----------
+    association, binding : ndarray, shape (n, k) and (n, m)
+        log10 likelihood ratios physical : optical and bound : unbound of
+        each pair's assessments (an ``orbit`` assessment in both), NaN where
+        a rule gave none. Columns are summed in order.
+    settings
+        The project's verdict settings.
+
+    Returns
+    -------
+    dict of arrays: ``status`` (index into :data:`STATUSES`), ``probability``,
+    ``p_physical``, ``p_bound`` and ``log10_odds`` (NaN where undefined).
+    """
+    cap = settings.max_strength
+    association, binding = np.atleast_2d(association), np.atleast_2d(binding)
+    n = max(association.shape[0], binding.shape[0])
+    has_assoc = np.isfinite(association).any(axis=1) if association.shape[1] else np.zeros(n, bool)
+    has_binding = np.isfinite(binding).any(axis=1) if binding.shape[1] else np.zeros(n, bool)
+    capped = lambda a: np.where(np.isnan(a), 0.0, np.clip(a, -cap, cap))  # noqa: E731
+    log_odds = settings.prior_log10_odds + capped(association).sum(axis=1) if association.shape[1] \
+        else np.full(n, settings.prior_log10_odds)
+    bound_odds = settings.prior_bound_log10_odds + capped(binding).sum(axis=1) if binding.shape[1] \
+        else np.full(n, settings.prior_bound_log10_odds)
+    p_phys = np.where(has_assoc, _p_from_log_odds(log_odds), np.nan)
+    p_bound = np.where(has_binding, _p_from_log_odds(bound_odds), np.nan)
+    physical = has_assoc & (p_phys >= settings.physical_threshold)
+    bound = physical & has_binding & (p_bound >= settings.bound_threshold)
+    comoving = physical & has_binding & (p_bound <= settings.unbound_threshold)
+    optical = has_assoc & ~bound & ~comoving & (p_phys <= settings.optical_threshold)
+    status = np.select([bound, comoving, optical], [0, 1, 2], default=3).astype(np.int8)
+    probability = np.select([bound, comoving, optical, has_assoc],
+                            [p_phys * p_bound, p_phys * (1 - p_bound), 1 - p_phys, p_phys], default=np.nan)
+    return {"status": status, "probability": probability, "p_physical": p_phys, "p_bound": p_bound,
+            "log10_odds": np.where(has_assoc, log_odds, np.nan)}
 
 
 def _direction(a: Assessment, status: str) -> int:
@@ -75,38 +121,30 @@ def strongest(assessments: list[Assessment], status: str) -> tuple[Assessment | 
 def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings) -> Verdict:
     assoc = [a for a in assessments if a.question in ("association", "orbit") and a.strength is not None]
     binding = [a for a in assessments if a.question in ("binding", "orbit") and a.strength is not None]
-    cap = settings.max_strength
-
-    def capped(a: Assessment) -> float:
-        return max(-cap, min(cap, a.strength))  # type: ignore[arg-type]
-
-    log_odds = settings.prior_log10_odds + sum(capped(a) for a in assoc)
-    p_phys = _p_from_log_odds(log_odds) if assoc else None
-    bound_odds = settings.prior_bound_log10_odds + sum(capped(a) for a in binding)
-    p_bound = _p_from_log_odds(bound_odds) if binding else None
+    numbers = combine_arrays(np.array([[a.strength for a in assoc]], float).reshape(1, -1),
+                             np.array([[a.strength for a in binding]], float).reshape(1, -1), settings)
+    log_odds = float(numbers["log10_odds"][0]) if assoc else settings.prior_log10_odds
+    p_phys = float(numbers["p_physical"][0]) if assoc else None
+    p_bound = float(numbers["p_bound"][0]) if binding else None
+    status, prob = STATUSES[int(numbers["status"][0])], float(numbers["probability"][0])
 
     if p_phys is None:
-        status, prob = "undetermined", None
+        prob = None
         summary = "No line of evidence on association could be weighed."
-    elif p_phys >= settings.physical_threshold and p_bound is not None and p_bound >= settings.bound_threshold:
-        status, prob = "bound", p_phys * p_bound
+    elif status == "bound":
         summary = (f"Physical ({p_statement('P', p_phys)}) and bound: its motion allows a bound orbit "
                    f"({p_statement('P(bound)', p_bound)}).")
-    elif p_phys >= settings.physical_threshold and p_bound is not None and p_bound <= settings.unbound_threshold:
-        status, prob = "co-moving", p_phys * (1 - p_bound)
+    elif status == "co-moving":
         summary = (f"Physical ({p_statement('P', p_phys)}) but moving too fast for a bound orbit "
                    f"({p_statement('P(bound)', p_bound)}): a co-moving, unbound pair.")
-    elif p_phys <= settings.optical_threshold:
-        status, prob = "optical", 1 - p_phys
+    elif status == "optical":
         summary = f"An optical pair: {p_statement('P(physical)', p_phys)}."
+    elif p_phys >= settings.physical_threshold:
+        summary = (f"Physical ({p_statement('P', p_phys)}), but whether it is bound is open"
+                   + (" (no motion test could be made)." if p_bound is None
+                      else f" ({p_statement('P(bound)', p_bound)})."))
     else:
-        status, prob = "undetermined", p_phys
-        if p_phys >= settings.physical_threshold:
-            summary = (f"Physical ({p_statement('P', p_phys)}), but whether it is bound is open"
-                       + (" (no motion test could be made)." if p_bound is None
-                          else f" ({p_statement('P(bound)', p_bound)})."))
-        else:
-            summary = f"The evidence is not decisive: {p_statement('P(physical)', p_phys)}."
+        summary = f"The evidence is not decisive: {p_statement('P(physical)', p_phys)}."
 
     def line(a: Assessment) -> str:
         return f"{a.title}: {a.explanation}"
