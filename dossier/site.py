@@ -51,6 +51,26 @@ class RuleSection:
     summary: str
     sections: list[tuple[str, str]]
     assessments: list
+    figures: list = ()
+
+
+#: Which figures show each line of evidence, by the start of their slugs.
+RULE_FIGURES: dict[str, tuple[str, ...]] = {
+    "distance": ("parallaxes",),
+    "parallax-agreement": ("parallaxes",),
+    "common-motion": ("sky-chart",),
+    "chance-alignment": ("sky-chart",),
+    "proper-motion-orbit": ("sky-chart",),
+    "relative-motion": ("orbit-", "motion-"),
+    "orbit-consistency": ("orbit-", "motion-"),
+    "orbit-fit": ("orbit-", "motion-"),
+    "spectroscopic-orbit": ("rv-", "periodogram-"),
+    "companion-claims": ("detection-map",),
+    "luminosity": ("hr-diagram",),
+    "coevality": ("hr-diagram",),
+    "space-velocity": ("neighbours",),
+    "neighbours": ("neighbours",),
+}
 
 
 def doc_sections(doc: str) -> tuple[str, list[tuple[str, str]]]:
@@ -77,14 +97,16 @@ def _para(lines: list[str]) -> str:
     return re.sub(r"\s+", " ", " ".join(lines)).replace("``", "").strip()
 
 
-def _rule_sections(result: SystemResult) -> list[RuleSection]:
+def _rule_sections(result: SystemResult, figures: list[Figure] = ()) -> list[RuleSection]:
+    """One section per rule that weighed something, with links to the figures on the page that show it."""
     out = []
     for rule in RULES:
         found = [a for a in result.assessments if a.rule == rule.id]
         if not found:
             continue
         summary, sections = doc_sections(rule.doc)
-        out.append(RuleSection(rule.id, rule.title, rule.citation, summary, sections, found))
+        shown = [f for f in figures if f.slug.startswith(RULE_FIGURES.get(rule.id, ()))]
+        out.append(RuleSection(rule.id, rule.title, rule.citation, summary, sections, found, shown))
     return out
 
 
@@ -177,7 +199,9 @@ def render_site(project: Project, results: dict[str, SystemResult], figures: dic
             result=result,
             facts=result.facts,
             figures=figures[sid],
-            rules=_rule_sections(result),
+            rules=_rule_sections(result, figures[sid] + (claim_figures or {}).get(sid, [])
+                                 + [f for log in (logs or {}).get(sid, []) for f in log.figures]
+                                 + (star_figures or {}).get(sid, [])),
             notes_html=render_markdown(result.system.notes),
             note_html=lambda text: render_markdown(text or ""),
             references=cited_sources(project, result),
@@ -389,6 +413,49 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
             shutil.rmtree(staging)
 
 
+def _code_hash() -> str:
+    """SHA-256 of Dossier's own source: a cached figure is reused only by the code that drew it."""
+    import hashlib
+
+    package = Path(__file__).resolve().parent
+    digest = hashlib.sha256()
+    for path in sorted(package.rglob("*.py")):
+        digest.update(path.relative_to(package).as_posix().encode() + b"\0" + path.read_bytes())
+    return digest.hexdigest()
+
+
+def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
+    """Every figure of one system's page: ``system``, ``claims``, ``stars`` (lists) and ``logs`` (by pair).
+
+    Drawing is most of a build's time, so with a :class:`dossier.cache.Cache`
+    the figures are kept under a key made of the system's evidence content
+    hash (its evidence, log, references and settings) and the hash of
+    Dossier's source: an unchanged system is not drawn again.
+    """
+    from dataclasses import asdict
+
+    from dossier.release import content_hash, evidence_files
+
+    def compute() -> dict:
+        return {
+            "system": [asdict(f) for f in draw_system(result)],
+            "claims": [asdict(f) for f in draw_detections(result) + [
+                f for pid in result.facts.rv_orbits for f in draw_spectroscopic(result, pid)]],
+            "logs": {pid: [asdict(f) for f in draw_log(result, pid)] for pid in result.facts.logs},
+            "stars": [asdict(f) for f in draw_stars(result) + draw_neighbours(result)],
+        }
+
+    sid = result.system.id
+    if cache is None:
+        data = compute()
+    else:
+        key = {"evidence": content_hash(evidence_files(project.root, sid)), "code": _code_hash()}
+        data = cache.get_or_compute(f"figures-{sid}", key, compute)
+    as_figures = lambda items: [Figure(**item) for item in items]  # noqa: E731
+    return {"system": as_figures(data["system"]), "claims": as_figures(data["claims"]),
+            "stars": as_figures(data["stars"]), "logs": {pid: as_figures(v) for pid, v in data["logs"].items()}}
+
+
 def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_cache: bool = True) -> Path:
     """Build the site of a project into ``out_dir``; return its index page.
 
@@ -408,13 +475,15 @@ def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_ca
                            + ". Nothing was written. Fix: restore them (e.g. git checkout -- releases/).")
     releases = {sid: found for sid, found in all_releases(project.root).items() if sid in project.systems}
     results = weigh_project(project, use_cache=use_cache)
-    figures = {sid: draw_system(result) for sid, result in results.items()}
-    claim_figures = {sid: draw_detections(result) + [f for pid in result.facts.rv_orbits
-                                                     for f in draw_spectroscopic(result, pid)]
-                     for sid, result in results.items()}
-    logs = {sid: [LogSection(pid, log, draw_log(result, pid)) for pid, log in result.facts.logs.items()]
+    from dossier.cache import Cache
+
+    cache = Cache(project.root) if use_cache else None
+    drawn = {sid: draw_figures(project, result, cache) for sid, result in results.items()}
+    figures = {sid: d["system"] for sid, d in drawn.items()}
+    claim_figures = {sid: d["claims"] for sid, d in drawn.items()}
+    logs = {sid: [LogSection(pid, log, drawn[sid]["logs"][pid]) for pid, log in result.facts.logs.items()]
             for sid, result in results.items()}
-    star_figures = {sid: draw_stars(result) + draw_neighbours(result) for sid, result in results.items()}
+    star_figures = {sid: d["stars"] for sid, d in drawn.items()}
     pages = render_site(project, results, figures, logs, claim_figures, star_figures, pdf=pdf, releases=releases,
                         use_cache=use_cache)
     write_site(Path(out_dir), pages, input_hashes(project))

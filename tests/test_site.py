@@ -191,3 +191,23 @@ def test_every_page_has_its_provenance_table_and_prov_json(site):
     assert "rule <code>distance</code> v1" in section and "sky-survey-1, sky-survey-2, sky-survey-3" in section
     doc = json.loads((site / "systems/heron-1/provenance.json").read_text())
     assert {"entity", "activity", "agent", "wasGeneratedBy", "used", "wasDerivedFrom"} <= set(doc)
+
+
+def test_unchanged_systems_take_their_figures_from_the_cache(demo_copy, tmp_path):
+    import json
+    import shutil
+
+    shutil.rmtree(demo_copy / ".dossier-cache", ignore_errors=True)
+    build(demo_copy, tmp_path / "one", pdf=False)
+    entries = {p.name.rsplit("-", 1)[0]: p for p in (demo_copy / ".dossier-cache").glob("figures-*.json")}
+    assert sorted(entries) == ["figures-alder-4", "figures-heron-1", "figures-wren-9"]  # figures-<system>-<key>.json
+    for path in entries.values():  # mark every cached figure: a marked figure on a page came from the cache
+        data = json.loads(path.read_text())
+        for f in data["system"]:
+            f["caption"] += " [from the cache]"
+        path.write_text(json.dumps(data))
+    edit(demo_copy / "systems/wren-9/evidence.yaml", "title: Two dwarfs", "title: Two K and M dwarfs")
+    build(demo_copy, tmp_path / "two", pdf=False)
+    assert "[from the cache]" in (tmp_path / "two/systems/heron-1/index.html").read_text()
+    assert "[from the cache]" in (tmp_path / "two/systems/alder-4/index.html").read_text()
+    assert "[from the cache]" not in (tmp_path / "two/systems/wren-9/index.html").read_text()  # its evidence changed
