@@ -135,12 +135,14 @@ def read_chunks(path: Path, names: dict[str, str], chunk_rows: int = DEFAULT_CHU
     path = Path(path)
     if not path.is_file():
         raise DossierError(f"{path}: no such file. Fix: give the path of a CSV or Parquet table of pairs.")
+    import pyarrow as pa
+
     row = 0
     if _kind(path) == "csv":
-        import pyarrow as pa
         import pyarrow.csv as pcsv
 
-        # every column as text first: the conversion, with its row number, is ours
+        # pyarrow infers each column's type; a column it reads as text fails the cast in _to_table,
+        # which names the first bad row
         try:
             reader = pcsv.open_csv(path, read_options=pcsv.ReadOptions(block_size=1 << 22),
                                    convert_options=pcsv.ConvertOptions(strings_can_be_null=True))
@@ -162,12 +164,8 @@ def read_chunks(path: Path, names: dict[str, str], chunk_rows: int = DEFAULT_CHU
                 yield from _flush(pending, names, str(path), row)
                 row += size
                 pending, size = [], 0
-    except Exception as exc:  # a malformed line deep in a CSV file
-        import pyarrow as pa
-
-        if isinstance(exc, pa.ArrowInvalid):
-            raise DossierError(f"{path}: {exc}. Fix: correct that line; nothing was written.") from None
-        raise
+    except pa.ArrowInvalid as exc:  # a malformed line deep in a CSV file
+        raise DossierError(f"{path}: {exc}. Fix: correct that line; nothing was written.") from None
     if pending:
         yield from _flush(pending, names, str(path), row)
 

@@ -8,6 +8,7 @@ iterates in an unordered way.
 
 from __future__ import annotations
 
+import functools
 import json
 import re
 import shutil
@@ -262,13 +263,12 @@ def render_pdfs(html_pages: dict[str, str], cache=None) -> dict[str, bytes]:
     """
     import hashlib
     import os
-
-    import weasyprint
+    from importlib.metadata import version
 
     styles = {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted((templates_dir() / "assets").glob("*.css"))}
 
     def key(html: str) -> dict:
-        return {"html": hashlib.sha256(html.encode()).hexdigest(), "css": styles, "weasyprint": weasyprint.__version__}
+        return {"html": hashlib.sha256(html.encode()).hexdigest(), "css": styles, "weasyprint": version("weasyprint")}
 
     out: dict[str, bytes] = {}
     todo = []
@@ -413,6 +413,7 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
             shutil.rmtree(staging)
 
 
+@functools.lru_cache(maxsize=1)
 def _code_hash() -> str:
     """SHA-256 of Dossier's own source: a cached figure is reused only by the code that drew it."""
     import hashlib

@@ -31,6 +31,8 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
 from pydantic import BaseModel, ConfigDict
 
 Outcome = Literal["supports", "against", "neutral", "insufficient", "error"]
@@ -225,3 +227,25 @@ class Verdict:
             "reasons_against": list(self.reasons_against),
             "missing": list(self.missing),
         }
+
+
+# ----------------------------------------------------------------------------
+# Helpers of the rules' vectorised kernels
+
+
+def columns(*arrays: ArrayLike) -> tuple[list[NDArray], NDArray]:
+    """The arguments of a kernel as float64 arrays of one shape, and where none of them is NaN (missing)."""
+    cols = [np.asarray(a, dtype=float) for a in arrays]
+    shape = np.broadcast_shapes(*(c.shape for c in cols))
+    cols = [np.broadcast_to(c, shape) for c in cols]
+    complete = np.ones(shape, dtype=bool)
+    for c in cols:
+        complete &= ~np.isnan(c)
+    return cols, complete
+
+
+def unfilled(shape: tuple[int, ...], names: tuple[str, ...]) -> dict[str, NDArray]:
+    """A kernel's result before any pair is weighed: every pair insufficient, every number NaN."""
+    out: dict[str, NDArray] = {"outcome": np.full(shape, OUTCOME_CODES["insufficient"], dtype=np.int8)}
+    out.update({name: np.full(shape, np.nan) for name in names})
+    return out

@@ -37,6 +37,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import chance
+from dossier.astro.binary import python_square
 from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -106,7 +107,7 @@ def kernel(rho_arcsec: np.ndarray, magnitude: np.ndarray, settings: Settings, le
             density_deg, extrap = chance.density_at_magnitude(mag, tm, td)
             sigma_arcsec = chance.per_sq_deg_to_per_sq_arcsec(density_deg)
             # Python's rho**2 (C pow) for λ, numpy's square inside chance_alignment_probability: as before
-            lam = math.pi * np.float_power(rho, 2.0) * sigma_arcsec
+            lam = math.pi * python_square(rho) * sigma_arcsec
             p = chance.chance_alignment_probability(rho, sigma_arcsec)
             strength = np.log10(settings.companion_rate_per_decade / (2 * math.log(10) * lam))
         usable = known & (lam > 0)

@@ -41,6 +41,7 @@ from pydantic import Field
 
 from dossier.astro import distance
 from dossier.astro.binary import python_hypot as _hypot  # CPython's math.hypot, bit for bit
+from dossier.astro.binary import python_square as _pow2  # CPython's x ** 2, bit for bit
 from dossier.rules.base import OUTCOME_CODES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -57,20 +58,11 @@ class Settings(RuleSettings):
     )
 
 
-_T27 = 134217729.0  # 2**27 + 1: Veltkamp's splitting constant
 _LN10 = math.log(10)
 _SQRT_2PI = math.sqrt(2 * math.pi)
 #: Pairs per block of the element-wise part: temporaries of this size stay in the cache, which makes
 #: 10^6 pairs about twice as fast as whole-array operations.
 _BLOCK = 4096
-
-
-def _pow2(x: np.ndarray) -> np.ndarray:
-    """``x ** 2`` of a Python float: C ``pow(x, 2.0)``, which ``float_power`` calls; numpy's ``x ** 2``
-    multiplies, and the two differ in the last bit about once in a thousand."""
-    return np.float_power(x, 2.0)
-
-
 _SUPPORTS, _AGAINST, _INSUFFICIENT = (np.int8(OUTCOME_CODES[k]) for k in ("supports", "against", "insufficient"))
 _FLOAT_KEYS = ("strength", "statistic", "delta_parallax", "delta_parallax_uncertainty", "depth_allowance",
                "threshold")

@@ -40,7 +40,17 @@ from numpy.typing import ArrayLike, NDArray
 from pydantic import Field
 
 from dossier.astro import binary, binding
-from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
+from dossier.astro.binary import python_square
+from dossier.rules.base import (
+    OUTCOME_CODES,
+    OUTCOME_NAMES,
+    Assessment,
+    Quantity,
+    Rule,
+    RuleSettings,
+    columns,
+    unfilled,
+)
 from dossier.rules.facts import SystemFacts
 
 
@@ -80,31 +90,6 @@ def outcome_codes(strength: NDArray, decisive: float) -> NDArray:
     """Outcome codes (:data:`~dossier.rules.base.OUTCOME_CODES`) of binding strengths."""
     return np.where(strength > decisive, OUTCOME_CODES["supports"],
                     np.where(strength < -decisive, OUTCOME_CODES["against"], OUTCOME_CODES["neutral"])).astype(np.int8)
-
-
-def python_square(x: NDArray) -> NDArray:
-    """``x ** 2`` as Python computes it for a float (the C library's ``pow``); numpy's ``x ** 2`` is
-    ``x * x``, which differs from it in the last bit for about 0.1 % of inputs. numpy's ``power`` with an
-    array exponent calls that ``pow``, except on CPUs where it uses its own AVX-512 ``pow``."""
-    return np.power(x, np.full_like(x, 2.0))
-
-
-def columns(*arrays: ArrayLike) -> tuple[list[NDArray], NDArray]:
-    """The arguments of a kernel as float64 arrays of one shape, and where none of them is NaN (missing)."""
-    cols = [np.asarray(a, dtype=float) for a in arrays]
-    shape = np.broadcast_shapes(*(c.shape for c in cols))
-    cols = [np.broadcast_to(c, shape) for c in cols]
-    complete = np.ones(shape, dtype=bool)
-    for c in cols:
-        complete &= ~np.isnan(c)
-    return cols, complete
-
-
-def unfilled(shape: tuple[int, ...], names: tuple[str, ...]) -> dict[str, NDArray]:
-    """A kernel's result before any pair is weighed: every pair insufficient, every number NaN."""
-    out: dict[str, NDArray] = {"outcome": np.full(shape, OUTCOME_CODES["insufficient"], dtype=np.int8)}
-    out.update({name: np.full(shape, np.nan) for name in names})
-    return out
 
 
 KERNEL_KEYS = ("outcome", "strength", "statistic", "delta_pm", "delta_pm_uncertainty", "orbit_limit",

@@ -34,16 +34,23 @@ from numpy.typing import ArrayLike, NDArray
 from pydantic import Field
 
 from dossier.astro import binary, binding
-from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
+from dossier.astro.binary import python_square
+from dossier.rules.base import (
+    OUTCOME_CODES,
+    OUTCOME_NAMES,
+    Assessment,
+    Quantity,
+    Rule,
+    RuleSettings,
+    columns,
+    unfilled,
+)
 from dossier.rules.facts import SystemFacts
 from dossier.rules.proper_motion_orbit import (
     LN_STRENGTH_LIMIT,
     binding_strength,
-    columns,
     lr_text,
     outcome_codes,
-    python_square,
-    unfilled,
 )
 
 

@@ -18,6 +18,7 @@ import pytest
 from scipy import stats
 
 from dossier.astro import distance
+from dossier.astro.binary import python_square
 from dossier.engine import weigh_project, weigh_system
 from dossier.rules import chance_alignment, parallax_agreement
 from dossier.rules.base import OUTCOME_CODES
@@ -197,7 +198,7 @@ def test_square_port_is_python_float_power_bit_for_bit():
     x = 10 ** np.random.default_rng(4).uniform(-4, 4, 50000)
     want = np.array([v**2 for v in x.tolist()])
     assert (x * x != want).any()
-    np.testing.assert_array_equal(parallax_agreement._pow2(x), want)
+    np.testing.assert_array_equal(python_square(x), want)
 
 
 # -- chance alignment -----------------------------------------------------------------------------------------------
