@@ -15,20 +15,39 @@ A measurement with σ ≫ R tells nothing and the ratio tends to 1, so an
 uninformative measurement never moves a verdict; a precise difference well
 below R favours bound, one well above favours unbound.
 
-The planar integrals are done in polar coordinates: averaging the 2-D
-Gaussian over the direction of v gives the Rice kernel
+Both ratios have closed forms. The product of the two Gaussians (true
+velocity under the unbound model, measurement about it) is a Gaussian in Δ of
+variance g² + σ² times a Gaussian in v of mean μ = Δ g²/(g² + σ²) and
+dispersion τ = gσ/√(g² + σ²) (common practice), so each likelihood is a
+Gaussian probability of a disc or an interval:
+
+* planar: L_bound = P(|x| ≤ R) / (πR²) for x ~ N₂(Δ, σ²), the cumulative
+  noncentral χ² with 2 degrees of freedom (``scipy.special.chndtr``);
+  L_unbound = N₂(Δ; g² + σ²) P(|v| > R) e^(R²/2g²) for v ~ N₂(μ, τ²), a
+  Marcum Q-function Q₁(μ/τ, R/τ) (Marcum 1950, IRE Trans. Inf. Theory 6,
+  59, from memory): the noncentral χ² survival function of
+  ``scipy.stats.ncx2.sf``, accurate far into the tail;
+* line of sight: L_bound = [Φ((R−Δ)/σ) − Φ((−R−Δ)/σ)] / 2R and
+  L_unbound = N(Δ; 0, √(g² + σ²)) [Φ((−R−μ)/τ) + Φ((μ−R)/τ)] / 2Φ(−R/g),
+  all in logs (``scipy.special.log_ndtr``).
+
+Rows where a planar probability is too small to trust (``chndtr`` below
+1e-45, near its own cut-off; the survival function below 1e-280) fall back
+to the
+log-space quadrature of earlier versions: the Rice kernel
 exp(−(r² + Δ²)/2σ²) I₀(rΔ/σ²) / (2πσ²) (Rice 1945, Bell Syst. Tech. J. 24,
-46), and the remaining radial integral is done by composite Gauss–Legendre
-quadrature on pieces that resolve the kernel's peak near r = Δ. Any
-consistent velocity unit (mas/yr or km/s) may be used.
+46) integrated over r by composite Gauss–Legendre quadrature on pieces that
+resolve the kernel's peak near r = Δ. Any consistent velocity unit (mas/yr
+or km/s) may be used.
 
 Many pairs at once: rows are computed in blocks, so memory stays small, and
 each row's value does not depend on the others. Callers that clip the ratio
-(the rules clip its log10 at ±99) pass ``beyond``: rows whose ratio is
-certainly past ±``beyond`` are then settled from cheap bounds on the two
-quadratures (see :func:`_planar_side`, :func:`_line_side`) instead of the
-quadratures, which cost about a thousand function evaluations per row; every
-other row is computed exactly as without it.
+(the rules clip its log10 at ±99) pass ``beyond``: rows that take the
+quadrature and whose ratio is certainly past ±``beyond`` are then settled
+from cheap bounds on the two quadratures (see :func:`_planar_side`,
+:func:`_line_side`) instead of the quadratures, which cost about a thousand
+function evaluations per row; every other row is computed exactly as
+without it.
 """
 
 from __future__ import annotations
@@ -66,22 +85,27 @@ def _log_quad(log_f, edges: NDArray) -> NDArray:
         return np.log(np.sum(np.exp(terms - top), axis=(-2, -1))) + top[..., 0, 0]
 
 
-def _by_rows(rows, side, beyond: float | None, *arrays: ArrayLike):
-    """``rows(*columns)`` over the broadcast arrays in blocks of rows; with ``beyond``, rows that
-    ``side(*columns, beyond)`` settles come back as ±inf without ``rows``. 0-d in, a numpy scalar out."""
+def _by_rows(closed, rows, side, beyond: float | None, *arrays: ArrayLike):
+    """The ratio of every row of the broadcast arrays, in blocks of rows: ``closed(*columns)`` gives
+    values and where they hold; the other rows take ``rows(*columns)`` (the quadrature), or, with
+    ``beyond``, come back as ±inf where ``side(*columns, beyond)`` settles them. 0-d in, a numpy
+    scalar out."""
     cols = np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in arrays))
     shape = cols[0].shape
     flat = [c.reshape(-1) for c in cols]
     out = np.empty(flat[0].size)
-    todo = np.arange(out.size)
-    if beyond is not None:
-        settled = np.empty(out.size, dtype=np.int8)
+    held = np.empty(out.size, dtype=bool)
+    with np.errstate(all="ignore"):  # rows where the closed form fails (NaN, underflow) are not used
+        for start in range(0, out.size, _SIDE_BLOCK):
+            block = slice(start, start + _SIDE_BLOCK)
+            out[block], held[block] = closed(*(c[block] for c in flat))
+    todo = np.flatnonzero(~held)
+    if beyond is not None and todo.size:
         with np.errstate(all="ignore"):  # the bounds of unsettled rows (NaN, overflow) are not used
-            for start in range(0, out.size, _SIDE_BLOCK):
-                settled[start:start + _SIDE_BLOCK] = side(*(c[start:start + _SIDE_BLOCK] for c in flat), float(beyond))
-        out[settled > 0] = np.inf
-        out[settled < 0] = -np.inf
-        todo = np.flatnonzero(settled == 0)
+            settled = side(*(c[todo] for c in flat), float(beyond))
+        out[todo[settled > 0]] = np.inf
+        out[todo[settled < 0]] = -np.inf
+        todo = todo[settled == 0]
     for start in range(0, todo.size, _BLOCK):
         k = todo[start:start + _BLOCK]
         out[k] = rows(*(c[k] for c in flat))
@@ -106,7 +130,7 @@ def log_lr_bound_planar(delta: ArrayLike, sigma: ArrayLike, radius: ArrayLike, g
         Rows whose ln ratio is certainly ≥ ``beyond`` come back as +inf, ≤ −``beyond`` as −inf,
         settled by :func:`_planar_side` without the quadratures; the others are unchanged.
     """
-    return _by_rows(_planar_rows, _planar_side, beyond, delta, sigma, radius, group_sigma)
+    return _by_rows(_planar_closed, _planar_rows, _planar_side, beyond, delta, sigma, radius, group_sigma)
 
 
 def _planar_rows(d: NDArray, s: NDArray, R: NDArray, g: NDArray) -> NDArray:
@@ -123,7 +147,18 @@ def _planar_rows(d: NDArray, s: NDArray, R: NDArray, g: NDArray) -> NDArray:
         return np.log(r / gg**2) - (r**2 - RR**2) / (2 * gg**2) + log_rice(r)
 
     top = np.maximum(R + 12 * g + 12 * s, d + 12 * s)
-    return _log_quad(log_bound, _pieces(np.zeros_like(R), R, d, s)) - _log_quad(log_unbound, _tail_pieces(R, top, d, s, g))
+    zero = np.zeros_like(R)
+    # Where the measurement peaks beyond R, each integrand is largest at r = R and falls off within
+    # s²/|d − R| of it, which the pieces around d do not resolve: extra edges there.
+    inside = _with_marks(_pieces(zero, R, d, s), R, -s * s / np.maximum(d - R, s), zero, R)
+    outside = _with_marks(_tail_pieces(R, top, d, s, g), R, s * s / np.maximum(R - d, s), R, top)
+    return _log_quad(log_bound, inside) - _log_quad(log_unbound, outside)
+
+
+def _with_marks(edges: NDArray, start: NDArray, step: NDArray, lo: NDArray, hi: NDArray) -> NDArray:
+    """``edges`` with start + step × (1, 4, 12) added (clipped to [lo, hi]), sorted."""
+    marks = np.clip(start[..., None] + step[..., None] * np.array([1.0, 4.0, 12.0]), lo[..., None], hi[..., None])
+    return np.sort(np.concatenate([edges, marks], axis=-1), axis=-1)
 
 
 def _tail_pieces(R: NDArray, top: NDArray, centre: NDArray, s: NDArray, g: NDArray) -> NDArray:
@@ -137,7 +172,7 @@ def log_lr_bound_line(delta: ArrayLike, sigma: ArrayLike, radius: ArrayLike, gro
                       *, beyond: float | None = None) -> NDArray[np.float64]:
     """ln L_bound/L_unbound for a 1-D (line-of-sight) velocity difference; arguments as the planar form
     (``beyond`` settled by :func:`_line_side`)."""
-    return _by_rows(_line_rows, _line_side, beyond, delta, sigma, radius, group_sigma)
+    return _by_rows(_line_closed, _line_rows, _line_side, beyond, delta, sigma, radius, group_sigma)
 
 
 def _line_closed_form(ad: NDArray, s: NDArray, R: NDArray, g: NDArray) -> tuple[NDArray, NDArray]:
@@ -164,6 +199,61 @@ def _line_rows(d: NDArray, s: NDArray, R: NDArray, g: NDArray) -> NDArray:
 
     top = np.maximum(R + 12 * g + 12 * s, ad + 12 * s)
     return log_l_b - _log_quad(log_unbound, _tail_pieces(R, top, ad, s, g))
+
+
+# Below these a planar probability is left to the quadrature (its logarithm may have lost digits).
+_TINY = 1e-280
+_CHNDTR_LOW = 1e-45
+
+
+def _marcum_q(a: NDArray, b: NDArray) -> NDArray:
+    """Q₁(a, b) = P(|y| > b) for a 2-D unit Gaussian y centred a away: the survival function of the
+    noncentral χ² with 2 degrees of freedom at b² and noncentrality a², as ``scipy.stats.ncx2.sf``
+    computes it (Boost's, accurate far into the tail); its ufunc is taken directly, because importing
+    ``scipy.stats`` costs about a second, more than a whole ``dossier weigh``."""
+    global _NCX2_SF
+    if _NCX2_SF is None:
+        try:
+            from scipy.special._ufuncs import _ncx2_sf as sf  # what scipy.stats.ncx2.sf calls
+        except ImportError:  # a SciPy that moved it: the public, slower-to-import route
+            from scipy.stats import ncx2
+
+            sf = ncx2.sf
+        _NCX2_SF = sf
+    return _NCX2_SF(b * b, 2.0, a * a)
+
+
+_NCX2_SF = None
+
+
+def _planar_closed(d: NDArray, s: NDArray, R: NDArray, g: NDArray) -> tuple[NDArray, NDArray]:
+    """:func:`log_lr_bound_planar` in closed form (module notes), and where it holds."""
+    a, b = d / s, R / s
+    p_in = special.chndtr(b * b, 2, a * a)
+    var = g * g + s * s
+    tau = g * s / np.sqrt(var)
+    centre, edge = d * g * g / var / tau, R / tau
+    p_out = _marcum_q(centre, edge)
+    log_l_b = np.log(p_in) - np.log(np.pi * R * R)
+    log_l_u = -np.log(2 * np.pi * var) - d * d / (2 * var) + np.log(p_out) + R * R / (2 * g * g)
+    value = log_l_b - log_l_u
+    # chndtr loses its accuracy below about 1e-50 and returns exactly 0 further down (tests/astro/test_binding.py)
+    trusted = (p_in >= _CHNDTR_LOW) & (p_out >= _TINY)
+    return value, _sane(d, s, R, g) & trusted & np.isfinite(value)
+
+
+def _line_closed(d: NDArray, s: NDArray, R: NDArray, g: NDArray) -> tuple[NDArray, NDArray]:
+    """:func:`log_lr_bound_line` in closed form (module notes), and where it holds."""
+    ad = np.abs(d)
+    log_l_b, _ = _line_closed_form(ad, s, R, g)
+    var = g * g + s * s
+    tau = g * s / np.sqrt(var)
+    mu = ad * g * g / var
+    log_tails = np.logaddexp(special.log_ndtr((-R - mu) / tau), special.log_ndtr((mu - R) / tau))
+    log_l_u = (-0.5 * np.log(2 * np.pi * var) - ad * ad / (2 * var) + log_tails
+               - np.log(2.0) - special.log_ndtr(-R / g))
+    value = log_l_b - log_l_u
+    return value, _sane(ad, s, R, g) & np.isfinite(value)
 
 
 # ----------------------------------------------------------------------------

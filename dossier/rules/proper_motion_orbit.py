@@ -214,7 +214,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
 RULE = Rule(
     id="proper-motion-orbit",
     title="Proper motion against a bound orbit",
-    version=1,
+    version=2,  # 2: likelihood ratio in closed form (noncentral χ², Marcum Q)
     subject="pair",
     question="binding",
     needs=("a proper motion for each member", "a parallax", "the separation", "the total mass"),

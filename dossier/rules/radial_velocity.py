@@ -169,7 +169,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
 RULE = Rule(
     id="radial-velocity-agreement",
     title="Radial-velocity agreement",
-    version=1,
+    version=2,  # 2: likelihood ratio in closed form (normal CDFs)
     subject="pair",
     question="binding",
     needs=("a radial velocity for each member", "a parallax", "the separation", "the total mass"),

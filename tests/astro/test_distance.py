@@ -301,3 +301,47 @@ def test_fractional_error_class() -> None:
     expected = ["precise", "usable", "usable", "imprecise", "imprecise", "imprecise", "imprecise"]
     assert fractional_error_class(w, s).tolist() == expected
     assert fractional_error_class(10.0, 0.1).item() == "precise"
+
+
+# ------------------------------------------------------ fast paths for precise parallaxes
+
+NARROW_CASES = [
+    (10.0, 0.001, 1.35),
+    (10.0, 0.5, 1.35),
+    (2.0, 0.15, 1.35),  # near the slope limit (s·|d ln p/du| = 0.33)
+    (0.5, 0.02, 0.5),  # small w·L: the prior's exp(−1/(uL)) dominates the slope
+    (50.0, 0.1, 1.35),
+]
+
+
+@pytest.mark.parametrize(("w", "s", "L"), NARROW_CASES)
+def test_narrow_posteriors_take_the_fast_paths_and_match_quad(w: float, s: float, L: float) -> None:
+    from dossier.astro.distance import _narrow
+
+    assert _narrow(np.array([w]), np.array([s]), np.array([L]))[0]
+    quantile, log_m = _reference_posterior(w, s, L)
+    expected = np.array([quantile(q) for q in QS])
+    # Reference: scipy.integrate.quad + scipy.optimize.brentq. Gauss–Hermite (16 nodes) for m, the cubic
+    # Hermite integral on a z-grid of step 1/8 for the quantiles: far tighter than the sinh grid's 1e-4.
+    np.testing.assert_allclose(edsd_quantiles(w, s, L, QS), expected, rtol=1e-6)
+    assert edsd_log_marginal(w, s, L) == pytest.approx(log_m, abs=1e-10)
+
+
+def test_fast_paths_and_sinh_grid_agree_across_the_border() -> None:
+    # Reference: the sinh-grid quadrature (itself checked against scipy.integrate.quad above) on rows drawn
+    # around the limits of _narrow, so that a row moving across the border changes its numbers only within
+    # the grid's own accuracy.
+    from dossier.astro import distance
+
+    rng = np.random.default_rng(3)
+    n = 3000
+    L = rng.uniform(0.3, 3.0, n)
+    w = 10 ** rng.uniform(-1, 2, n)
+    s = w * 10 ** rng.uniform(-3, np.log10(0.1), n)
+    narrow = distance._narrow(w, s, L)
+    assert 0.3 < narrow.mean() < 0.95
+    w, s, L = w[narrow], s[narrow], L[narrow]
+    np.testing.assert_allclose(distance._gh_log_marginal(w, s, L), distance._grid_log_marginal(w, s, L),
+                               rtol=0, atol=1e-8)
+    qs = np.array(QS)
+    np.testing.assert_allclose(distance._z_quantiles(w, s, L, qs), distance._grid_quantiles(w, s, L, qs), rtol=2e-5)
