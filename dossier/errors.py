@@ -41,10 +41,15 @@ class Problem:
     def __str__(self) -> str:
         where = self.file if self.line == 0 else f"{self.file}:{self.line}:{self.column}"
         field = f" {self.field}:" if self.field else ""
-        return f"{where}:{field} {self.message} Fix: {self.fix}"
+        return _printable(f"{where}:{field} {self.message} Fix: {self.fix}")
 
     def to_dict(self) -> dict[str, object]:
         return asdict(self)
+
+
+def _printable(text: str) -> str:
+    """Control characters escaped (``\\x1b``): a name taken from a hostile file cannot drive the terminal."""
+    return "".join(c if c.isprintable() else ascii(c)[1:-1] for c in text)
 
 
 class DossierError(Exception):

@@ -3,16 +3,23 @@
 The file it writes validates as it stands (one component, no pairs), so
 ``dossier check`` passes until the user starts filling it in; every other
 field is shown as a commented example with its unit.
+
+The id names a folder and the files built from it, so it is refused unless
+it is a plain id (:func:`dossier.schema.loader.system_id_problem`: no path
+separators, no '..', no spaces, control characters or look-alike letters,
+not too long, not a name Windows reserves) and differs from every existing
+system's id by more than case. The file appears whole or not at all, and
+never replaces one that exists.
 """
 
 from __future__ import annotations
 
-import re
+import contextlib
+import os
 from pathlib import Path
 
 from dossier.errors import DossierError
-from dossier.schema.loader import EVIDENCE_FILE, SETTINGS_FILE, SYSTEMS_DIR
-from dossier.schema.models import ID_PATTERN
+from dossier.schema.loader import EVIDENCE_FILE, SETTINGS_FILE, SYSTEMS_DIR, printable, system_id_problem
 
 TEMPLATE = """\
 # Evidence for {system_id}. Units: angles in degrees (position angle north
@@ -69,18 +76,37 @@ notes: |
 
 def new_system(project: Path, system_id: str) -> Path:
     """Create ``systems/<id>/evidence.yaml``; refuse to overwrite anything."""
-    if not re.match(ID_PATTERN, system_id):
-        raise DossierError(f"'{system_id}' is not a valid system id. Fix: use letters, digits, '-', '_', '.' or '+'.")
+    project = Path(project)
+    bad = system_id_problem(system_id)
+    if bad is not None:
+        what, fix = bad
+        raise DossierError(f"{what} Nothing was written. Fix: {fix}")
     if not (project / SETTINGS_FILE).is_file():
-        raise DossierError(f"{project} has no {SETTINGS_FILE}, so it is not a project folder. "
+        raise DossierError(f"{printable(str(project))} has no {SETTINGS_FILE}, so it is not a project folder. "
                            "Fix: give the folder that holds dossier.toml.")
-    folder = project / SYSTEMS_DIR / system_id
+    systems = project / SYSTEMS_DIR
+    if systems.is_dir():
+        for existing in systems.iterdir():
+            if existing.name != system_id and existing.name.casefold() == system_id.casefold():
+                raise DossierError(f"the system '{existing.name}' exists, and '{system_id}' differs from it only in case "
+                                   "(one folder on macOS and Windows). Nothing was written. Fix: choose another id, "
+                                   f"or edit {SYSTEMS_DIR}/{existing.name}/{EVIDENCE_FILE}.")
+    folder = systems / system_id
     path = folder / EVIDENCE_FILE
     if path.exists():
         raise DossierError(f"{path} already exists; nothing was written. Fix: choose another id or edit that file.")
     folder.mkdir(parents=True, exist_ok=True)
     text = TEMPLATE.format(system_id=system_id, title=f"{system_id} (title to be written)")
-    tmp = path.with_suffix(".yaml.tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(path)
+    tmp = folder / f".{EVIDENCE_FILE}.{os.getpid()}.tmp"
+    try:
+        with open(tmp, "x", encoding="utf-8") as handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.link(tmp, path)  # fails if the file appeared meanwhile: an existing file is never replaced
+    except FileExistsError:
+        raise DossierError(f"{path} already exists; nothing was written. Fix: choose another id or edit that file.") from None
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
     return path

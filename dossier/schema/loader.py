@@ -4,15 +4,27 @@ YAML is read with ruamel.yaml's round-trip loader, which keeps the line and
 column of every key and item, so that a pydantic validation error can be
 reported as ``file:line:column: field: message Fix: ...``. Nothing is
 computed here: the loader parses, validates and cross-checks identifiers.
+
+Hostile input is refused with a problem, never a traceback: files larger
+than the ``[limits]`` of ``dossier.toml`` are not read at all; text must be
+UTF-8 (a byte-order mark is accepted and dropped; an invalid byte is named
+with its offset, line and column); YAML nested too deeply, or whose aliases
+form a loop or expand without end, is refused before it is walked; system
+folders must be plain ids (no look-alike letters, spaces or control
+characters, no link out of the project, no two differing only in case).
 """
 
 from __future__ import annotations
 
+import codecs
 import difflib
+import math
 import re
 import tomllib
 import types
 import typing
+import unicodedata
+from collections.abc import Collection
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -20,13 +32,19 @@ from typing import Any
 from pydantic import BaseModel, ValidationError
 
 from dossier.errors import Problem, ProblemsFound
-from dossier.schema.models import ID_PATTERN, Measured, Reference, System
-from dossier.schema.settings import Settings
+from dossier.schema.models import ID_PATTERN, MAX_SYSTEM_ID_LENGTH, Measured, Reference, System, is_identifier
+from dossier.schema.settings import LimitSettings, Settings
 
 SETTINGS_FILE = "dossier.toml"
 REFERENCES_FILE = "references.yaml"
 SYSTEMS_DIR = "systems"
 EVIDENCE_FILE = "evidence.yaml"
+#: dossier.toml cannot set its own limit.
+MAX_SETTINGS_MB = 1.0
+#: Deepest nesting of YAML collections (an evidence file needs about 7).
+MAX_YAML_DEPTH = 64
+#: Most YAML values a file may expand to through aliases (``*name``).
+MAX_YAML_NODES = 1_000_000
 
 
 @dataclass
@@ -44,6 +62,97 @@ class Project:
 
 
 # ----------------------------------------------------------------------------
+# Text files: size limit and encoding
+
+
+def read_text(path: Path, shown: str, limit_mb: float | None = None, setting: str = "") -> tuple[str | None, list[Problem]]:
+    """The text of a UTF-8 file, or ``None`` and the problem.
+
+    A file larger than ``limit_mb`` is not read (``setting`` names the
+    ``dossier.toml`` key that raises the limit). A UTF-8 byte-order mark
+    is dropped. An invalid byte is reported with its 0-based byte offset, and
+    the line and column where it sits.
+    """
+    try:
+        size = path.stat().st_size
+        if limit_mb is not None and size > limit_mb * 1e6:
+            raise _TooLarge(size)
+        data = path.read_bytes()
+    except _TooLarge:
+        fix = f"raise [limits] {setting} in {SETTINGS_FILE} if the file really is meant to be this large, " if setting else ""
+        return None, [Problem(shown, 0, 0, "", f"the file is {size / 1e6:.1f} MB, larger than the limit of {limit_mb:g} MB, "
+                              "so it was not read.", f"{fix}or check that this is the right file (split it, or remove "
+                              "what does not belong in it).")]
+    except OSError as exc:
+        return None, [Problem(shown, 0, 0, "", f"cannot be read ({exc.strerror or exc}).",
+                              "check that it is a readable file (permissions, and not a folder).")]
+    bom = codecs.BOM_UTF8 if data.startswith(codecs.BOM_UTF8) else b""
+    try:
+        return data[len(bom):].decode("utf-8"), []
+    except UnicodeDecodeError as exc:
+        return None, [_encoding_problem(data, len(bom) + exc.start, exc.reason, shown)]
+
+
+class _TooLarge(Exception):
+    pass
+
+
+def _encoding_problem(data: bytes, offset: int, reason: str, shown: str) -> Problem:
+    line = data.count(b"\n", 0, offset) + 1
+    start = data.rfind(b"\n", 0, offset) + 1
+    column = len(data[start:offset].decode("utf-8", errors="replace").lstrip("\ufeff")) + 1
+    byte = data[offset]
+    guess = ""
+    try:
+        text = data[start:data.find(b"\n", offset) if b"\n" in data[offset:] else len(data)].decode("cp1252")
+        char = text[column - 1] if len(text) >= column else ""
+        if char and not char.isspace():
+            guess = f"; in Latin-1/Windows-1252 it would be {char!r}"
+    except (UnicodeDecodeError, IndexError):
+        pass
+    return Problem(shown, line, column, "", f"is not UTF-8 text: byte 0x{byte:02X} at byte offset {offset} "
+                   f"({reason}{guess}).", "save the file as UTF-8 (in a spreadsheet, \"CSV UTF-8\"; in an editor, "
+                   "\"Save with encoding\", UTF-8).")
+
+
+def printable(name: str) -> str:
+    """A name as it can be shown: control characters escaped, so that a message cannot hide or forge text."""
+    return "".join(c if c.isprintable() else ascii(c)[1:-1] for c in name)
+
+
+def system_id_problem(name: str) -> tuple[str, str] | None:
+    """(what, fix) when ``name`` cannot be a system id (it names a folder and the files built from it)."""
+    shown = printable(name)
+    if not name:
+        return "the system id is empty.", "give an id such as 'kestrel-3'."
+    if len(name) > MAX_SYSTEM_ID_LENGTH:
+        return (f"the system id is {len(name)} characters long, more than {MAX_SYSTEM_ID_LENGTH}.",
+                "choose a shorter id: it names a folder and the files of the site.")
+    if not is_identifier(name):
+        odd = next((c for c in name if not re.fullmatch(r"[A-Za-z0-9_.+-]", c)), None)
+        if odd is None or name[0] in "_.+-":
+            why = f"it starts with {name[0]!r}"
+        elif ord(odd) > 127:
+            why = f"it contains {odd!r}, U+{ord(odd):04X} {unicodedata.name(odd, 'an unnamed character')}"
+        else:
+            why = f"it contains {ascii(odd)}"
+        folded = unicodedata.normalize("NFKD", name).encode("ascii", "ignore").decode()
+        safe = re.sub(r"[^A-Za-z0-9_.+-]+", "-", folded).strip("-_.+")[:MAX_SYSTEM_ID_LENGTH]
+        kept = sum(c.isalnum() for c in folded) == sum(c.isalnum() for c in name)  # no letter lost in folding
+        example = f" (for example '{safe}')" if safe and kept and safe != name else ""
+        return (f"'{shown}' is not a valid system id: {why}.",
+                f"use only ASCII letters, digits, '-', '_', '.' or '+', starting with a letter or digit{example}.")
+    if name.split(".")[0].upper() in _RESERVED:
+        return (f"'{shown}' is not a valid system id: Windows reserves the file name {name.split('.')[0]!r}.",
+                "choose another id (a project may be checked out on Windows).")
+    return None
+
+
+#: Device names no folder may have on Windows, whatever the extension.
+_RESERVED = frozenset({"CON", "PRN", "AUX", "NUL", *(f"COM{i}" for i in range(1, 10)), *(f"LPT{i}" for i in range(1, 10))})
+
+
+# ----------------------------------------------------------------------------
 # YAML with positions
 
 
@@ -56,36 +165,154 @@ def _yaml(positions: bool = True):
     return yaml
 
 
-def read_yaml(path: Path, shown: str, positions: bool = True) -> tuple[Any, list[Problem]]:
+def read_yaml(path: Path, shown: str, positions: bool = True, limit_mb: float | None = None,
+              setting: str = "") -> tuple[Any, list[Problem]]:
     """Parse one YAML file; a syntax error becomes a problem with its position.
 
     ``positions=False`` parses with the fast C loader and keeps no positions:
     callers use it first and parse again with positions only when there is
-    something to report.
+    something to report. ``limit_mb``: see :func:`read_text`.
     """
+    text, problems = read_text(path, shown, limit_mb, setting)
+    if text is None:
+        return None, problems
+    return parse_yaml(text, shown, positions)
+
+
+def parse_yaml(text: str, shown: str, positions: bool = True) -> tuple[Any, list[Problem]]:
+    """Parse YAML text (see :func:`read_yaml`); the tree is checked for depth and alias loops."""
     from ruamel.yaml.error import MarkedYAMLError, YAMLError
 
     try:
-        text = path.read_text(encoding="utf-8")
-    except UnicodeDecodeError as exc:
-        return None, [Problem(shown, 0, 0, "", f"is not UTF-8 text ({exc.reason}).", "save the file as UTF-8.")]
-    try:
-        return _yaml(positions).load(text), []
+        tree = _yaml(positions).load(text)
+    except RecursionError:
+        return None, [_too_deep(shown)]
     except MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line, col = (mark.line + 1, mark.column + 1) if mark else (0, 0)
-        what = (exc.problem or exc.context or "invalid YAML").strip()
-        if exc.context and exc.problem and exc.context_mark is not None and exc.context_mark is not mark:
+        raw = (exc.problem or exc.context or "invalid YAML").strip()
+        what = printable(raw)
+        duplicate = re.match(r'found duplicate key (".*?") with value', what)
+        if duplicate:  # ruamel quotes both values in full: name the key and where its mapping starts
+            what = f"duplicate key {duplicate.group(1)}: the same mapping already has it"
+            if exc.context_mark is not None:
+                what += f" (the mapping starts at line {exc.context_mark.line + 1})"
+        elif exc.context and exc.problem and exc.context_mark is not None and exc.context_mark is not mark:
             what += f" ({exc.context.strip()} at line {exc.context_mark.line + 1})"
-        return None, [Problem(shown, line, col, "", f"YAML syntax error: {what}.", _yaml_fix(what))]
+        return None, [Problem(shown, line, col, "", f"YAML syntax error: {shown_text(what, 300)}.", _yaml_fix(raw))]
     except YAMLError as exc:  # pragma: no cover - ruamel raises marked errors for text input
-        return None, [Problem(shown, 0, 0, "", f"YAML error: {exc}.", "correct the YAML syntax.")]
+        return None, [Problem(shown, 0, 0, "", f"YAML error: {shown_text(printable(str(exc)), 300)}.",
+                              "correct the YAML syntax.")]
+    except Exception as exc:  # a scalar the constructor cannot build: 2019-02-30, !!float abc
+        line, col = _bad_scalar(text)
+        return None, [Problem(shown, line, col, "", f"this value cannot be read ({shown_text(printable(str(exc)), 200)}).",
+                              "write a valid date (YYYY-MM-DD) or number, or put the text in quotes.")]
+    problem = _tree_problem(tree, shown)
+    return (None, [problem]) if problem else (tree, [])
+
+
+def _bad_scalar(text: str) -> tuple[int, int]:
+    """1-based line and column of the first scalar that YAML cannot construct, or (0, 0)."""
+    from ruamel.yaml import YAML
+    from ruamel.yaml.nodes import MappingNode, ScalarNode, SequenceNode
+
+    try:
+        yaml = YAML(typ="safe", pure=True)
+        stack = [yaml.compose(text)]
+        while stack:
+            node = stack.pop()
+            if isinstance(node, ScalarNode):
+                try:
+                    yaml.constructor.construct_object(node, deep=True)
+                except Exception:
+                    return node.start_mark.line + 1, node.start_mark.column + 1
+            elif isinstance(node, MappingNode):
+                stack += [part for pair in reversed(node.value) for part in reversed(pair)]
+            elif isinstance(node, SequenceNode):
+                stack += list(reversed(node.value))
+    except Exception:  # noqa: BLE001 - only a position is sought; without one the problem names the file
+        pass
+    return 0, 0
+
+
+def shown_text(text: str, limit: int) -> str:
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
+def _too_deep(shown: str) -> Problem:
+    return Problem(shown, 0, 0, "", f"the YAML is nested more than {MAX_YAML_DEPTH} levels deep.",
+                   "look for unclosed or repeated brackets '[' or '{'; an evidence file needs a few levels only.")
+
+
+_ALIAS_LOOP = "a YAML alias ('*name') refers to a node that contains it."
+
+
+def _scalar_problem(node: Any, shown: str, line: int, col: int) -> Problem | None:
+    """YAML tags (``!name``, ``!!set``) have no place in Dossier's files; nor have lone surrogates."""
+    from collections.abc import Set
+
+    from ruamel.yaml.comments import TaggedScalar
+
+    if isinstance(node, (TaggedScalar, Set)):
+        tag = getattr(getattr(node, "tag", None), "value", None) or ("!!set" if isinstance(node, Set) else "")
+        return Problem(shown, line, col, "", f"a YAML tag {printable(str(tag))!r} is used: Dossier's files use plain "
+                       "values.", "remove the tag (the word that starts with '!').")
+    if isinstance(node, str) and re.search("[\ud800-\udfff]", node):
+        return Problem(shown, line, col, "", f"a text holds an invalid Unicode character (a lone surrogate): "
+                       f"{ascii(node)[:60]}.", "remove the \\u escape of the surrogate, or write the character itself.")
+    return None
+
+
+def _tree_problem(tree: Any, shown: str) -> Problem | None:
+    """A problem when the tree is too deep, refers to itself, expands (through aliases) beyond reason, or holds a tag.
+
+    YAML aliases (``*name``) repeat a node by reference: a loop would make
+    the conversion to plain data recurse without end, and nested repetition
+    ("billion laughs") would make it exponential. Walked before anything else.
+    """
+    count = 0
+
+    def where(node: Any, key: Any, is_key: bool) -> tuple[int, int]:
+        lc = getattr(node, "lc", None)  # the round-trip loader keeps positions; the fast one does not
+        try:
+            if isinstance(node, dict):
+                line, col = lc.key(key) if is_key else lc.value(key)
+            else:
+                line, col = lc.item(key)
+            return line + 1, col + 1
+        except Exception:  # noqa: BLE001 - no position kept
+            return 0, 0
+
+    def walk(node: Any, depth: int, ancestors: set[int], line: int, col: int) -> Problem | None:
+        nonlocal count
+        count += 1
+        if count > MAX_YAML_NODES:
+            return Problem(shown, 0, 0, "", f"the YAML expands to more than {MAX_YAML_NODES:,} values (through "
+                           "aliases '*name' that repeat anchors '&name').", "write the values out, without aliases.")
+        if not isinstance(node, (dict, list)):
+            return _scalar_problem(node, shown, line, col)
+        if depth > MAX_YAML_DEPTH:
+            return _too_deep(shown)
+        if id(node) in ancestors:
+            return Problem(shown, line, col, "", _ALIAS_LOOP, "remove the alias, or write the values out.")
+        inner = ancestors | {id(node)}
+        if isinstance(node, dict):
+            items = [(k, (k, True)) for k in node] + [(v, (k, False)) for k, v in node.items()]
+        else:
+            items = [(v, (i, False)) for i, v in enumerate(node)]
+        for item, (key, is_key) in items:
+            found = walk(item, depth + 1, inner, *where(node, key, is_key))
+            if found:
+                return found
+        return None
+
+    return walk(tree, 0, set(), 0, 0)
 
 
 def _yaml_fix(what: str) -> str:
     if "duplicate key" in what:
         return "keep one of the two entries with this key."
-    if "tab" in what:
+    if "tab" in what or "'\\t'" in what or "'\t'" in what:  # ruamel writes the tab as a backslash and a t
         return "indent with spaces, not tabs."
     return "correct the YAML syntax at this position (indentation, a missing ':' or an unclosed bracket)."
 
@@ -191,9 +418,15 @@ def _unit_of(model: type[BaseModel], loc: tuple[Any, ...]) -> str:
     return ""
 
 
+def shown_value(value: Any, limit: int = 60) -> str:
+    """``repr`` of a value for a message, shortened: a hostile file may hold a megabyte in one value."""
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 5] + "…" + text[-4:]
+
+
 def _message(err: dict[str, Any], model: type[BaseModel], loc: tuple[Any, ...]) -> tuple[str, str]:
     kind = err["type"]
-    value = err.get("input")
+    value = _Shown(err.get("input"))
     ctx = err.get("ctx") or {}
     name = str(loc[-1]) if loc else "value"
     if kind == "missing":
@@ -207,9 +440,15 @@ def _message(err: dict[str, Any], model: type[BaseModel], loc: tuple[Any, ...]) 
         if close:
             return f"unknown key '{name}'.", f"did you mean '{close[0]}'?"
         return f"unknown key '{name}'.", f"remove it, or use one of: {', '.join(allowed)}."
-    if kind in {"float_parsing", "float_type", "int_parsing", "int_type", "int_from_float"}:
+    if kind in {"float_parsing", "float_type", "int_parsing", "int_type", "int_from_float", "finite_number"}:
         unit = _unit_of(model, loc)
         unit_text = f" in {unit}" if unit and "uncertainty" not in str(unit) else ""
+        if kind == "finite_number":
+            return (f"{value!r} is not a finite number.",
+                    f"write a number{unit_text} (not NaN or infinity; leave out a value that is not known).")
+        if isinstance(value.value, str) and _WITH_UNIT.match(value.value):
+            return (f"{value!r} is not a number: units are not written in the file.",
+                    f"write the number alone{unit_text} (convert it first if it is in another unit).")
         return f"{value!r} is not a number.", f"write a number{unit_text}."
     if kind in {"string_type"}:
         return f"{value!r} is not text.", "write it as text (quote it if needed)."
@@ -219,6 +458,9 @@ def _message(err: dict[str, Any], model: type[BaseModel], loc: tuple[Any, ...]) 
         if ctx.get("pattern") == ID_PATTERN:
             return f"{value!r} is not a valid id.", "use letters, digits, '-', '_', '.' or '+', starting with a letter or digit."
         return f"{value!r} is not in the expected form.", f"match the pattern {ctx.get('pattern')}."
+    if kind == "greater_than" and name in {"uncertainty", "theta_error", "rho_error"} and ctx.get("gt") == 0:
+        return (f"the uncertainty {value!r} is not positive.",
+                "give the 1-sigma uncertainty, a number greater than 0 (a value known exactly is not a measurement).")
     if kind in {"greater_than", "greater_than_equal", "less_than", "less_than_equal"}:
         bound = {"greater_than": ("gt", "greater than"), "greater_than_equal": ("ge", "at least"),
                  "less_than": ("lt", "less than"), "less_than_equal": ("le", "at most")}[kind]
@@ -243,6 +485,23 @@ def _message(err: dict[str, Any], model: type[BaseModel], loc: tuple[Any, ...]) 
         what = what.rstrip(".") + "."
         return what, fix.rstrip(".") + "."
     return err["msg"].rstrip(".") + ".", "see schemas/evidence.schema.json for the expected form."
+
+
+#: A number followed by a unit (``14.2 mas``, ``3"``, ``12 deg``): units are never written in the files.
+_WITH_UNIT = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*[A-Za-z°\"'/]+")
+
+
+class _Shown:
+    """A value whose ``repr`` is shortened (see :func:`shown_value`)."""
+
+    def __init__(self, value: Any):
+        self.value = value
+
+    def __repr__(self) -> str:
+        return shown_value(self.value)
+
+    def __str__(self) -> str:
+        return shown_value(self.value)
 
 
 def validation_problems(
@@ -288,7 +547,9 @@ def load_settings(root: Path) -> tuple[Settings | None, list[Problem]]:
     if not path.is_file():
         return None, [Problem(SETTINGS_FILE, 0, 0, "", f"{SETTINGS_FILE} is missing from {root}.",
                               "create it with at least [project] title = \"...\" (see demo_project/dossier.toml).")]
-    text = path.read_text(encoding="utf-8")
+    text, problems = read_text(path, SETTINGS_FILE, MAX_SETTINGS_MB)
+    if text is None:
+        return None, problems
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -297,6 +558,11 @@ def load_settings(root: Path) -> tuple[Settings | None, list[Problem]]:
         what = re.sub(r"\s*\(at line.*\)$", "", str(exc))
         return None, [Problem(SETTINGS_FILE, line, col, "", f"TOML syntax error: {what}.",
                               "correct the TOML syntax (strings need quotes; tables are [name]).")]
+    problems = [_toml_problem(text, loc, f"{shown_value(value)} is not a finite number.",
+                              "write a number (nan and inf are not allowed here).")
+                for loc, value in _non_finite(data, ())]
+    if problems:
+        return None, problems
     try:
         settings = Settings.model_validate(data)
     except ValidationError as exc:
@@ -304,8 +570,9 @@ def load_settings(root: Path) -> tuple[Settings | None, list[Problem]]:
         for err in exc.errors(include_url=False):
             loc = tuple(err["loc"])
             what, fix = _message(err, Settings, loc)
-            line = _toml_position(text, loc if err["type"] != "missing" else loc[:-1])
-            problems.append(Problem(SETTINGS_FILE, line, 1 if line else 0, _dotted(list(loc)), what, fix))
+            if err["type"] == "missing":
+                fix = _toml_missing_fix(loc)
+            problems.append(_toml_problem(text, loc if err["type"] != "missing" else loc[:-1], what, fix, loc))
         return None, problems
     from dossier.rules.registry import validate_rule_settings
 
@@ -321,38 +588,90 @@ def load_settings(root: Path) -> tuple[Settings | None, list[Problem]]:
     return settings, problems
 
 
+def _toml_problem(text: str, at: tuple[Any, ...], what: str, fix: str, loc: tuple[Any, ...] | None = None) -> Problem:
+    line = _toml_position(text, at)
+    return Problem(SETTINGS_FILE, line, 1 if line else 0, _dotted(list(at if loc is None else loc)), what, fix)
+
+
+def _non_finite(node: Any, loc: tuple[Any, ...]):
+    """(loc, value) of every NaN or infinite float in parsed TOML (TOML allows nan and inf)."""
+    if isinstance(node, float) and not math.isfinite(node):
+        yield loc, node
+    elif isinstance(node, dict):
+        for key, value in node.items():
+            yield from _non_finite(value, loc + (key,))
+    elif isinstance(node, list):
+        for i, value in enumerate(node):
+            yield from _non_finite(value, loc + (i,))
+
+
+def _toml_missing_fix(loc: tuple[Any, ...]) -> str:
+    """How to add a missing key in TOML words: a [table], or key = value under its table."""
+    name = str(loc[-1])
+    info = _field_info(Settings, loc)
+    kind = _unwrap(info.annotation) if info is not None else None
+    hint = f" ({info.description.rstrip('.')})" if info is not None and info.description else ""
+    tables = [str(p) for p in loc[:-1] if not isinstance(p, int)]
+    if isinstance(kind, type) and issubclass(kind, BaseModel):
+        required = [k for k, f in kind.model_fields.items() if f.is_required()]
+        inside = f" with {', '.join(f'{k} = ...' for k in required)}" if required else ""
+        return f"add a table [{'.'.join(tables + [name])}]{inside}{hint}."
+    where = f" under [{'.'.join(tables)}]" if tables else " at the top of the file"
+    return f"add {name} = ...{where}{hint}."
+
+
 # ----------------------------------------------------------------------------
 # references.yaml and evidence files
 
 
-def load_references(root: Path) -> tuple[dict[str, Reference], list[Problem]]:
+def load_references(root: Path, limits: LimitSettings | None = None) -> tuple[dict[str, Reference], list[Problem]]:
+    refs, problems = _read_references(root, limits or LimitSettings())
+    return refs or {}, problems
+
+
+def _read_references(root: Path, limits: LimitSettings) -> tuple[_References | None, list[Problem]]:
+    """The references, or ``None`` when the file cannot be read at all (then no source id can be checked)."""
     path = root / REFERENCES_FILE
     if not path.is_file():
-        return {}, [Problem(REFERENCES_FILE, 0, 0, "", f"{REFERENCES_FILE} is missing.",
-                            "create it: one entry per source id with its citation.")]
-    tree, problems = read_yaml(path, REFERENCES_FILE)
+        return _References({}, set()), [Problem(REFERENCES_FILE, 0, 0, "", f"{REFERENCES_FILE} is missing.",
+                                                "create it: one entry per source id with its citation.")]
+    tree, problems = read_yaml(path, REFERENCES_FILE, limit_mb=limits.max_yaml_mb, setting="max_yaml_mb")
     if problems:
-        return {}, problems
+        return None, problems
     if tree is None:
-        return {}, []
+        return _References({}, set()), []
     if not isinstance(tree, dict):
-        return {}, [Problem(REFERENCES_FILE, 1, 1, "", "expected a mapping of source ids to references.",
-                            "write 'source-id:' lines, each with citation: ...")]
+        return None, [Problem(REFERENCES_FILE, 1, 1, "", "expected a mapping of source ids to references.",
+                              "write 'source-id:' lines, each with citation: ...")]
     refs: dict[str, Reference] = {}
+    invalid: set[str] = set()
     for key, value in tree.items():
         line, col = tree.lc.key(key)
-        if not re.match(ID_PATTERN, str(key)):
-            problems.append(Problem(REFERENCES_FILE, line + 1, col + 1, str(key), f"{key!r} is not a valid source id.",
-                                    "use letters, digits, '-', '_', '.' or '+'."))
+        if not is_identifier(key):
+            problems.append(Problem(REFERENCES_FILE, line + 1, col + 1, printable(str(key))[:60],
+                                    f"{shown_value(key)} is not a valid source id.",
+                                    "use letters, digits, '-', '_', '.' or '+', starting with a letter or digit."))
             continue
         try:
             refs[str(key)] = Reference.model_validate(_plain(value))
         except ValidationError as exc:
+            invalid.add(str(key))
             problems += [
                 Problem(p.file, p.line, p.column, f"{key}.{p.field}" if p.field else str(key), p.message, p.fix)
                 for p in validation_problems(exc, Reference, tree, REFERENCES_FILE, prefix=(key,))
             ]
-    return refs, problems
+    return _References(refs, invalid), problems
+
+
+class _References(dict):
+    """The valid references, and the ids of entries that are written but invalid (already reported).
+
+    A citation of an invalid entry is not reported again as an unknown source.
+    """
+
+    def __init__(self, valid: dict[str, Reference], invalid: set[str]):
+        super().__init__(valid)
+        self.ids = set(valid) | invalid
 
 
 def _refs_in(value: Any, loc: tuple[Any, ...], inherited: str | None):
@@ -394,12 +713,14 @@ def _ids(node: Any, key: str) -> list[tuple[int, Any]]:
     return list(enumerate(items)) if isinstance(items, list) else []
 
 
-def cross_check(tree: Any, system: System | None, folder: str, refs: dict[str, Reference], shown: str) -> list[Problem]:
-    """Identifiers that must resolve: sources, pair members, claimed companions.
+def cross_check(tree: Any, system: System | None, folder: str, refs: Collection[str] | None, shown: str) -> list[Problem]:
+    """Identifiers that must resolve: sources, pair members, claimed companions; a hierarchy without cycles.
 
     Runs on the raw YAML tree, so that it reports even when other fields of
     the file failed validation; the check that every measured value has a
     source needs the validated model and runs only when there is one.
+    ``refs`` is ``None`` when references.yaml could not be read: source ids
+    are not checked then (its own problem says why).
     """
     problems: list[Problem] = []
 
@@ -409,11 +730,12 @@ def cross_check(tree: Any, system: System | None, folder: str, refs: dict[str, R
 
     sid = tree.get("id")
     if isinstance(sid, str) and sid != folder:
-        add(("id",), f"the system id '{sid}' differs from its folder name '{folder}'.",
+        add(("id",), f"the system id '{printable(sid)[:80]}' differs from its folder name '{printable(folder)}'.",
             f"write id: {folder}, or rename the folder.")
-    for loc, ref in _tree_refs(tree, ()):
-        if ref not in refs:
-            close = difflib.get_close_matches(ref, list(refs), n=1, cutoff=0.6)
+    known_refs = getattr(refs, "ids", refs)
+    for loc, ref in (_tree_refs(tree, ()) if known_refs is not None else ()):
+        if ref not in known_refs:
+            close = difflib.get_close_matches(ref, sorted(known_refs), n=1, cutoff=0.6)
             hint = f"did you mean '{close[0]}'?" if close else f"add '{ref}' to {REFERENCES_FILE}."
             add(loc, f"source '{ref}' is not in {REFERENCES_FILE}.", hint)
     if system is not None:
@@ -452,6 +774,18 @@ def cross_check(tree: Any, system: System | None, folder: str, refs: dict[str, R
         if isinstance(parent, str) and parent not in known:
             add(("pairs", i, "parent"), f"parent '{parent}' is neither a component nor a pair of this system.",
                 _suggest(parent, known, "declare it under 'components'"))
+    for cycle, loc in _hierarchy_cycles(tree, known):
+        add(loc, f"the hierarchy has a cycle: {' → '.join(cycle)}; a pair cannot contain itself through its members "
+            "and parents.", "correct 'members' or 'parent' so that each pair resolves a smaller part of the system.")
+    seen_neighbours: dict[str, int] = {}
+    for i, item in _ids(tree, "neighbours"):
+        nid = item.get("id") if isinstance(item, dict) else None
+        if isinstance(nid, str):
+            if nid in seen_neighbours:
+                add(("neighbours", i, "id"),
+                    f"the neighbour id '{nid}' is already used by neighbours[{seen_neighbours[nid]}].",
+                    "give each neighbour its own id, or merge the two entries.")
+            seen_neighbours.setdefault(nid, i)
     for section, key, where in (("claims", "companion", components), ("claims", "around", components),
                                 ("non_detections", "around", components), ("orbits", "pair", set(pair_ids))):
         for i, item in _ids(tree, section):
@@ -468,32 +802,91 @@ def cross_check(tree: Any, system: System | None, folder: str, refs: dict[str, R
     return problems
 
 
+def _hierarchy_cycles(tree: Any, known: set[str]) -> list[tuple[list[str], tuple[Any, ...]]]:
+    """Cycles of containment: a pair contains its members, a component or pair contains the pairs that resolve it.
+
+    Each cycle once, as the ids along it (first id repeated at the end) and
+    the location of the entry that closes it. A pair naming itself as a
+    member is reported on its own by :func:`cross_check`.
+    """
+    edges: dict[str, list[tuple[str, tuple[Any, ...]]]] = {}
+    for i, pair in _ids(tree, "pairs"):
+        pid = pair.get("id") if isinstance(pair, dict) else None
+        if not isinstance(pid, str):
+            continue
+        members = pair.get("members")
+        for j, member in enumerate(members if isinstance(members, list) else []):
+            if isinstance(member, str) and member in known and member != pid:
+                edges.setdefault(pid, []).append((member, ("pairs", i, "members", j)))
+        parent = pair.get("parent")
+        if isinstance(parent, str) and parent in known:
+            edges.setdefault(parent, []).append((pid, ("pairs", i, "parent")))
+    found: list[tuple[list[str], tuple[Any, ...]]] = []
+    reported: set[frozenset[str]] = set()
+    state: dict[str, int] = {}  # 1 on the current path, 2 done
+    path: list[str] = []
+
+    for root in sorted(edges):  # depth first, iteratively: a hostile file may chain thousands of pairs
+        if root in state:
+            continue
+        state[root] = 1
+        path.append(root)
+        stack = [iter(edges.get(root, []))]
+        while stack:
+            step = next(stack[-1], None)
+            if step is None:
+                stack.pop()
+                state[path.pop()] = 2
+                continue
+            target, loc = step
+            if state.get(target) == 1:
+                cycle = path[path.index(target):] + [target]
+                if frozenset(cycle) not in reported:
+                    reported.add(frozenset(cycle))
+                    found.append((cycle, loc))
+            elif target not in state:
+                state[target] = 1
+                path.append(target)
+                stack.append(iter(edges.get(target, [])))
+    return found
+
+
 def _suggest(name: str, known: set[str], otherwise: str) -> str:
     close = difflib.get_close_matches(name, sorted(known), n=1, cutoff=0.5)
     return f"did you mean '{close[0]}'?" if close else f"{otherwise}."
 
 
-def load_system(root: Path, folder: str, refs: dict[str, Reference]) -> tuple[System | None, list[Problem]]:
+def load_system(root: Path, folder: str, refs: Collection[str] | None,
+                limits: LimitSettings | None = None) -> tuple[System | None, list[Problem]]:
+    limits = limits or LimitSettings()
     path = root / SYSTEMS_DIR / folder / EVIDENCE_FILE
     shown = f"{SYSTEMS_DIR}/{folder}/{EVIDENCE_FILE}"
     if not path.is_file():
         return None, [Problem(shown, 0, 0, "", "the evidence file is missing.",
                               f"run 'dossier new {root} {folder}' or remove the folder.")]
+    read = dict(limit_mb=limits.max_yaml_mb, setting="max_yaml_mb")
     # fast path: the C loader and no positions; when anything is wrong, read again with positions
-    tree, problems = read_yaml(path, shown, positions=False)
-    if not problems and isinstance(tree, dict):
+    tree, fast_problems = read_yaml(path, shown, positions=False, **read)
+    if not fast_problems and isinstance(tree, dict):
         try:
             system = System.model_validate(_plain(tree))
         except ValidationError:
             system = None
         if system is not None and not _cross_check_fails(tree, system, folder, refs):
             return system, []
-    tree, problems = read_yaml(path, shown)
-    if problems:
-        return None, problems
+    tree, problems = read_yaml(path, shown, **read)
+    loops = [p for p in fast_problems if p.message == _ALIAS_LOOP]
+    if problems or loops:
+        # the round-trip loader turns an alias inside its own anchor into null, silently: the fast loader's
+        # problem stands then
+        return None, problems or loops
+    if tree is None:
+        return None, [Problem(shown, 0, 0, "", "the evidence file is empty.",
+                              f"fill it in (run 'dossier new {root} NEW-ID' to see a template), or remove the folder.")]
     if not isinstance(tree, dict):
-        return None, [Problem(shown, 1, 1, "", "the evidence file must be a mapping of keys (id:, title:, ...).",
-                              "run 'dossier new' for a template.")]
+        return None, [Problem(shown, 1, 1, "", f"the evidence file must be a mapping of keys (id:, title:, ...), "
+                              f"not {type(tree).__name__ if not isinstance(tree, list) else 'a list'}.",
+                              f"write 'key: value' lines (run 'dossier new {root} NEW-ID' to see a template).")]
     try:
         system = System.model_validate(_plain(tree))
     except ValidationError as exc:
@@ -501,7 +894,7 @@ def load_system(root: Path, folder: str, refs: dict[str, Reference]) -> tuple[Sy
     return system, problems + cross_check(tree, system, folder, refs, shown)
 
 
-def _cross_check_fails(tree: Any, system: System, folder: str, refs: dict[str, Reference]) -> bool:
+def _cross_check_fails(tree: Any, system: System, folder: str, refs: Collection[str] | None) -> bool:
     """Whether cross_check would report anything (on a tree without positions)."""
     try:
         return bool(cross_check(tree, system, folder, refs, ""))
@@ -509,43 +902,95 @@ def _cross_check_fails(tree: Any, system: System, folder: str, refs: dict[str, R
         return True
 
 
+def system_folders(root: Path) -> tuple[list[str], list[Problem]]:
+    """The folders under ``systems/`` that hold a system, and a problem for each that cannot.
+
+    A folder's name is its system's id and names the files built from it,
+    so it must be a valid id (:func:`system_id_problem`); it may not be a
+    link to a folder outside the project; two names may not differ only in
+    case (they would be one folder on macOS and Windows). Hidden folders
+    (``.name``, as editors and version control make) and plain files are
+    not systems and are passed over.
+    """
+    base = root / SYSTEMS_DIR
+    if not base.is_dir():
+        return [], []
+    inside = root.resolve()
+    folders: list[str] = []
+    problems: list[Problem] = []
+    for entry in sorted(base.iterdir(), key=lambda p: p.name):
+        name = entry.name
+        if name.startswith(".") or not entry.is_dir():
+            continue
+        shown = f"{SYSTEMS_DIR}/{printable(name)}"
+        bad = system_id_problem(name)
+        if bad is not None:
+            what, fix = bad
+            problems.append(Problem(shown, 0, 0, "", f"the folder name {what[0].lower() + what[1:]}",
+                                    "rename the folder: " + fix))
+            continue
+        if entry.is_symlink() and not entry.resolve().is_relative_to(inside):
+            problems.append(Problem(shown, 0, 0, "", f"the folder is a link to {entry.resolve()}, outside the project.",
+                                    "keep every system's files inside the project folder (copy them in, or move the "
+                                    "project)."))
+            continue
+        folders.append(name)
+    by_case: dict[str, str] = {}
+    for name in list(folders):
+        first = by_case.setdefault(name.casefold(), name)
+        if first != name:
+            problems.append(Problem(f"{SYSTEMS_DIR}/{name}", 0, 0, "", f"the folder names '{first}' and '{name}' differ "
+                                    "only in case, so they would be one folder on macOS and Windows.",
+                                    "rename one of them, or merge them."))
+            folders.remove(name)
+    return folders, problems
+
+
 def load_project(root: Path | str, only: str | None = None) -> Project:
     """Load and validate a whole project; raise :class:`ProblemsFound` with every problem."""
     root = Path(root)
     if not root.is_dir():
-        raise ProblemsFound([Problem(str(root), 0, 0, "", "is not a project folder.",
+        raise ProblemsFound([Problem(printable(str(root)), 0, 0, "", "is not a project folder.",
                                      "give the folder that holds dossier.toml.")])
     settings, problems = load_settings(root)
-    refs, ref_problems = load_references(root)
+    limits = settings.limits if settings is not None else LimitSettings()
+    refs, ref_problems = _read_references(root, limits)
     problems += ref_problems
     systems: dict[str, System] = {}
-    folders = sorted(p.name for p in (root / SYSTEMS_DIR).iterdir() if p.is_dir()) if (root / SYSTEMS_DIR).is_dir() else []
+    folders, folder_problems = system_folders(root)
     if only is not None:
         if only not in folders:
-            raise ProblemsFound([Problem(f"{SYSTEMS_DIR}/{only}", 0, 0, "", f"there is no system '{only}'.",
+            raise ProblemsFound([Problem(f"{SYSTEMS_DIR}/{printable(only)[:80]}", 0, 0, "",
+                                         f"there is no system '{printable(only)[:80]}'.",
                                          _suggest(only, set(folders), f"choose one of: {', '.join(folders)}"))])
         folders = [only]
+    else:
+        problems += folder_problems
     logs: dict[str, tuple] = {}
+    from dossier.logbook import read_log
+    from dossier.schema.log import LOG_FILE
+
     for folder in folders:
-        system, system_problems = load_system(root, folder, refs)
+        system, system_problems = load_system(root, folder, refs, limits)
         problems += system_problems
         if system is not None:
             systems[folder] = system
-            from dossier.logbook import read_log
-            from dossier.schema.log import LOG_FILE
-
-            measures, log_problems = read_log(root / SYSTEMS_DIR / folder / LOG_FILE, f"{SYSTEMS_DIR}/{folder}/{LOG_FILE}",
-                                              pairs={p.id for p in system.pairs}, refs=set(refs))
-            problems += log_problems
-            logs[folder] = tuple(measures)
-    if settings is not None:
+        # the log is checked even when the evidence is not valid, so that every problem comes at once
+        measures, log_problems = read_log(root / SYSTEMS_DIR / folder / LOG_FILE, f"{SYSTEMS_DIR}/{folder}/{LOG_FILE}",
+                                          pairs={p.id for p in system.pairs} if system is not None else None,
+                                          refs=getattr(refs, "ids", None) if refs is not None else None,
+                                          max_mb=limits.max_log_mb)
+        problems += log_problems
+        logs[folder] = tuple(measures)
+    if settings is not None and refs is not None:
+        text = read_text(root / SETTINGS_FILE, SETTINGS_FILE)[0] or ""
         for i, entry in enumerate(settings.field_density):
             ref = entry.per_square_degree.ref or entry.ref
-            if ref is not None and ref not in refs:
-                problems.append(Problem(SETTINGS_FILE, _toml_position((root / SETTINGS_FILE).read_text(), ("field_density",)), 1,
+            if ref is not None and ref not in refs.ids:
+                problems.append(Problem(SETTINGS_FILE, _toml_position(text, ("field_density",)), 1,
                                         f"field_density[{i}]", f"source '{ref}' is not in {REFERENCES_FILE}.",
                                         f"add '{ref}' to {REFERENCES_FILE}."))
     if problems:
         raise ProblemsFound(problems)
-    assert settings is not None
-    return Project(root=root, settings=settings, references=refs, systems=systems, logs=logs)
+    assert settings is not None and refs is not None
+    return Project(root=root, settings=settings, references=dict(refs), systems=systems, logs=logs)

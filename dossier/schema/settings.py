@@ -85,6 +85,19 @@ class ReleaseSettings(Model):
     )
 
 
+class LimitSettings(Model):
+    """Largest input files Dossier reads: a larger file is refused, unread, with a message."""
+
+    # A guard against a wrong or damaged file eating memory and minutes: YAML with positions parses at a
+    # few hundred kB/s and the log at about 1 MB/s, so the defaults are far above any real evidence file or
+    # observing log (tens of kB) and far below what would stall a check.
+
+    max_yaml_mb: float = Field(
+        default=1.0, gt=0, description="Largest evidence.yaml or references.yaml, in MB (10^6 bytes)."
+    )
+    max_log_mb: float = Field(default=5.0, gt=0, description="Largest observing log (log.csv), in MB (10^6 bytes).")
+
+
 class Settings(Model):
     """The whole ``dossier.toml``."""
 
@@ -95,6 +108,7 @@ class Settings(Model):
     verdict: VerdictSettings = Field(default_factory=VerdictSettings)
     log: LogSettings = Field(default_factory=LogSettings)
     release: ReleaseSettings = Field(default_factory=ReleaseSettings)
+    limits: LimitSettings = Field(default_factory=LimitSettings)
     rules: dict[str, dict[str, Any]] = Field(
         default_factory=dict, description="Per-rule settings tables, keyed by rule id; 'enabled = false' switches a rule off."
     )
