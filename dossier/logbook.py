@@ -5,7 +5,11 @@ The log is ``systems/<id>/log.csv`` (columns and rules of a row in
 :class:`~dossier.errors.Problem` with its line in the file (the header is
 line 1; a quoted cell with line breaks makes a row span several lines, and
 the row's first line is the one named). An empty cell means "not given";
-cells are stripped of surrounding blanks.
+cells are stripped of surrounding blanks. A byte-order mark is accepted;
+text that is not UTF-8, a quote that is never closed, a row with cells
+beyond the header or too few cells to reach a required column, a value
+that is NaN or infinite and an epoch later than today are problems. An
+empty file is an empty log.
 
 Every change happens under an exclusive ``fcntl.flock`` on the sibling file
 ``log.csv.lock``: inside the lock the current log is read again, exact
@@ -42,8 +46,9 @@ from typing import Any, Literal, TypeVar
 from pydantic import ValidationError
 
 from dossier.errors import Problem, ProblemsFound
-from dossier.schema.loader import REFERENCES_FILE, SYSTEMS_DIR, _message, _suggest, load_project
+from dossier.schema.loader import REFERENCES_FILE, SYSTEMS_DIR, _message, _suggest, load_project, read_text, shown_value
 from dossier.schema.log import COLUMNS, LOG_FILE, LogMeasure
+from dossier.schema.models import future_epoch_error
 
 LOCK_SUFFIX = ".lock"
 REJECTED_SUFFIX = ".rejected.csv"
@@ -80,18 +85,21 @@ class _Table:
     text: str
 
 
-def _read_table(path: Path, shown: str) -> tuple[_Table | None, list[Problem]]:
+def _read_table(path: Path, shown: str, max_mb: float | None = None) -> tuple[_Table | None, list[Problem]]:
     """Split a CSV file into header and rows, keeping each row's first line number.
 
     Blank rows (no cell with text) are skipped. ``None`` when the file has
-    no header at all (empty) or cannot be read as CSV.
+    no header at all (empty) or cannot be read as CSV. A file larger than
+    ``max_mb`` is not read (see :func:`dossier.schema.loader.read_text`).
     """
-    try:
-        text = path.read_bytes().decode("utf-8-sig")  # spreadsheets write a byte-order mark
-    except UnicodeDecodeError as exc:
-        return None, [Problem(shown, 0, 0, "", f"is not UTF-8 text ({exc.reason}).",
-                              "save the file as UTF-8 (\"CSV UTF-8\" in a spreadsheet).")]
-    reader = csv.reader(io.StringIO(text, newline=""))
+    text, problems = read_text(path, shown, max_mb, "max_log_mb")  # spreadsheets write a byte-order mark: dropped
+    if text is None:
+        return None, problems
+    if "\0" in text:  # the csv module reads NUL as text, which no export (XML, HTML) could carry
+        line = text.count("\n", 0, text.index("\0")) + 1
+        return None, [_csv_problem("NUL", line, line, shown)]
+    # strict: a quote left open, or text after a closing quote, is an error rather than a silently merged row
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
     header: tuple[list[str], int] | None = None
     rows: list[_Row] = []
     start = 1
@@ -101,8 +109,7 @@ def _read_table(path: Path, shown: str) -> tuple[_Table | None, list[Problem]]:
         except StopIteration:
             break
         except csv.Error as exc:
-            return None, [Problem(shown, reader.line_num, 0, "", f"CSV syntax error: {exc}.",
-                                  "check the quotes on this line (a quote inside a cell is written twice: \"\").")]
+            return None, [_csv_problem(str(exc), start, reader.line_num, shown)]
         line, start = start, reader.line_num + 1
         if not any(cell.strip() for cell in cells):
             continue
@@ -113,6 +120,26 @@ def _read_table(path: Path, shown: str) -> tuple[_Table | None, list[Problem]]:
     if header is None:
         return None, []
     return _Table(header[0], header[1], rows, text), []
+
+
+def _csv_problem(error: str, start: int, line: int, shown: str) -> Problem:
+    """A CSV syntax error in words: ``start`` is the row's first line, ``line`` where the reader stopped."""
+    quote_fix = "close the quote, or remove it (a quote inside a quoted cell is written twice: \"\")."
+    if "unexpected end of data" in error:
+        return Problem(shown, start, 0, "", f"a quote opened in the row on line {start} is never closed: the rest of "
+                       "the file would be read as one cell.", quote_fix)
+    if "field larger than field limit" in error:
+        return Problem(shown, start, 0, "", f"a cell of the row on line {start} runs past {csv.field_size_limit():,} "
+                       "characters: most likely a quote that is never closed.", quote_fix)
+    if "NUL" in error:
+        return Problem(shown, line, 0, "", "the line contains a NUL byte: this is not a text file, or it is damaged.",
+                       "save the log as CSV text (UTF-8), or restore it from version control.")
+    where = f" (the row starts on line {start}: a quote opened there may not be closed)" if start != line else ""
+    if "expected after" in error:
+        return Problem(shown, line, 0, "", f"a quoted cell is followed by more text before the next comma{where}.",
+                       "put the whole cell in quotes, or none of it (a quote inside a quoted cell is written twice: \"\").")
+    return Problem(shown, line, 0, "", f"CSV syntax error: {error}{where}.",
+                   "check the quotes on this line (a quote inside a cell is written twice: \"\").")
 
 
 def _fields(table: _Table, shown: str, mapping: dict[str, str] | None) -> tuple[list[str | None], list[Problem]]:
@@ -169,6 +196,13 @@ def _row_data(row: _Row, table: _Table, fields: list[str | None], shown: str) ->
     if extra:
         problems.append(Problem(shown, row.line, 0, "", f"the row has {len(row.cells)} cells, the header names "
                                 f"{len(fields)} columns.", "remove the extra cells, or name their columns in the header."))
+    beyond = [table.header[i] for i in range(len(row.cells), len(fields)) if fields[i] in REQUIRED]
+    if beyond:
+        # trailing empty cells may be left out, but not so many that a required column is never reached
+        problems.append(Problem(shown, row.line, 0, beyond[0], f"the row has {len(row.cells)} cells, the header names "
+                                f"{len(fields)} columns: it ends before the required column '{beyond[0]}'.",
+                                "add the missing cells (an empty cell is nothing between two commas), or check for a "
+                                "missing comma or an unclosed quote."))
     data: dict[str, str] = {}
     for i, (field, cell) in enumerate(zip(fields, row.cells)):
         value = cell.strip()
@@ -203,7 +237,7 @@ def _measure(data: dict[str, str], names: dict[str, str], shown: str, line: int)
                 if field not in names:
                     continue
                 description = (LogMeasure.model_fields[field].description or "").rstrip(".")
-                what, fix = "a required value is empty.", f"fill it in ({description})." if description else "fill it in."
+                what, fix = _EMPTY, f"fill it in ({description})." if description else "fill it in."
             else:
                 what, fix = _message(err, LogMeasure, loc)
                 what = what.replace("?.", "?")  # the epoch validator's message ends with a question
@@ -217,9 +251,16 @@ def _measure(data: dict[str, str], names: dict[str, str], shown: str, line: int)
         value = getattr(measure, field)
         if value is not None and not math.isfinite(value):
             unit = (LogMeasure.model_fields[field].json_schema_extra or {}).get("unit", "")
-            problems.append(Problem(shown, line, 0, names.get(field, field), f"{data[field]!r} is not a finite number.",
+            problems.append(Problem(shown, line, 0, names.get(field, field), f"{shown_value(data[field])} is not a finite number.",
                                     f"write a number{f' in {unit}' if unit else ''}."))
+    future = future_epoch_error(measure.epoch)
+    if future is not None:  # a measure dated later than today is always a mistake: refused, not warned about
+        what, fix = future.split(" Fix: ", 1)
+        problems.append(Problem(shown, line, 0, names.get("epoch", "epoch"), what.rstrip(".") + ".", fix.rstrip(".") + "."))
     return (None, problems) if problems else (measure, [])
+
+
+_EMPTY = "a required value is empty."
 
 
 def _choices(field: str) -> list[str]:
@@ -255,7 +296,8 @@ def _check_names(data: dict[str, str], reported: list[Problem], line: int, names
 
 
 def read_log(
-    path: Path, shown: str, *, pairs: set[str] | None = None, refs: set[str] | None = None
+    path: Path, shown: str, *, pairs: set[str] | None = None, refs: set[str] | None = None,
+    max_mb: float | None = None,
 ) -> tuple[list[LogMeasure], list[Problem]]:
     """Read an observing log.
 
@@ -269,6 +311,9 @@ def read_log(
     pairs, refs
         When given, a row naming a pair or a source id not in these sets is
         a problem (and its measure is left out).
+    max_mb
+        A larger file is not read: one problem says so (``[limits]
+        max_log_mb`` in dossier.toml).
 
     Returns
     -------
@@ -277,7 +322,7 @@ def read_log(
     """
     import difflib
 
-    _, entries, problems = _log_entries(path, shown)
+    _, entries, problems = _log_entries(path, shown, max_mb)
     measures = []
     for line, measure in entries:
         bad = False
@@ -296,10 +341,11 @@ def read_log(
     return measures, problems
 
 
-def _log_entries(path: Path, shown: str) -> tuple[_Table | None, list[tuple[int, LogMeasure]], list[Problem]]:
+def _log_entries(path: Path, shown: str,
+                 max_mb: float | None = None) -> tuple[_Table | None, list[tuple[int, LogMeasure]], list[Problem]]:
     if not path.is_file():
         return None, [], []
-    table, problems = _read_table(path, shown)
+    table, problems = _read_table(path, shown, max_mb)
     if table is None:
         return None, [], problems
     fields, problems = _fields(table, shown, None)
@@ -308,6 +354,9 @@ def _log_entries(path: Path, shown: str) -> tuple[_Table | None, list[tuple[int,
     for row in table.rows:
         data, row_problems = _row_data(row, table, fields, shown)
         measure, value_problems = _measure(data, names, shown, row.line)
+        if len(row.cells) < len(fields):  # the cells past a short row's end are reported once, with the row
+            past_end = set(fields[len(row.cells):])
+            value_problems = [p for p in value_problems if not (p.message == _EMPTY and p.field in past_end)]
         problems += row_problems + value_problems
         if measure is not None and not row_problems:
             entries.append((row.line, measure))
@@ -348,21 +397,44 @@ def describe(measure: LogMeasure) -> str:
 
 @contextlib.contextmanager
 def _locked(path: Path) -> Iterator[None]:
-    """Hold an exclusive lock on ``<path>.lock`` (kept on disk: removing it would race)."""
+    """Hold an exclusive lock on ``<path>.lock`` (kept on disk: removing it would race).
+
+    Once the lock is held, temporary files of ``path`` left by a writer that
+    was killed half-way are removed: every writer of the log holds the lock
+    while its temporary file exists, so none of them belongs to a live one.
+    """
     import fcntl  # POSIX; imported here so that reading a log works everywhere
 
     with open(path.with_name(path.name + LOCK_SUFFIX), "a", encoding="utf-8") as handle:
         fcntl.flock(handle.fileno(), fcntl.LOCK_EX)
         try:
+            _remove_abandoned_temporaries(path)
             yield
         finally:
             fcntl.flock(handle.fileno(), fcntl.LOCK_UN)
 
 
+def _temporary_name(path: Path) -> str:
+    return f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
+
+
+def _remove_abandoned_temporaries(path: Path) -> None:
+    """Delete ``.<name>.<pid>.<hex>.tmp`` beside ``path`` (only call this holding the log's lock)."""
+    pattern = re.compile(rf"\.{re.escape(path.name)}\.\d+\.[0-9a-f]{{8}}\.tmp")
+    try:
+        names = os.listdir(path.parent)
+    except OSError:
+        return
+    for name in names:
+        if pattern.fullmatch(name):
+            with contextlib.suppress(OSError):
+                os.unlink(path.parent / name)
+
+
 def _replace_atomically(path: Path, text: str) -> None:
     """Write ``text`` to a temporary file beside ``path``, fsync it, rename it over ``path``, fsync the folder."""
     folder = path.parent
-    temporary = folder / f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
+    temporary = folder / _temporary_name(path)
     # os.open applies the umask to 0o666, so a new log gets the permissions of any new file
     fd = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
     try:

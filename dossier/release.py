@@ -21,9 +21,10 @@ system says now as version N (numbered per system, from 1) in
     every other file, and its own ``seal``: the SHA-256 of its canonical
     JSON without the seal.
 
-A release folder is written into a temporary folder and renamed into
-place, so it is whole or absent; an existing number is never overwritten;
-its files are made read-only. :func:`verify_releases` recomputes every hash
+A release folder is written into a temporary folder (``.<N>.<random>``
+beside it), flushed to disk and renamed into place, so it is whole or
+absent, even after a crash; an existing number is never overwritten; its
+files are made read-only. :func:`verify_releases` recomputes every hash
 and seal and the chain of ``previous`` links, so any edit is detected.
 
 The date is ``SOURCE_DATE_EPOCH`` when set (reproducible builds convention,
@@ -213,6 +214,7 @@ def freeze(project_dir: Path | str, system_id: str, note: str, environ: dict[str
         required_approvals`` asks.
     """
     from dossier.diff import state_of
+    from dossier.durable import fsync_path, fsync_tree
     from dossier.engine import weigh_project
     from dossier.report import to_json
     from dossier.schema.loader import load_project
@@ -276,11 +278,13 @@ def freeze(project_dir: Path | str, system_id: str, note: str, environ: dict[str
     try:
         for name, data in sorted(outputs.items()):
             _write_readonly(staging / name, data)
+        fsync_tree(staging)  # on disk before it gets its name: a power cut cannot leave a release of empty files
         try:
             staging.rename(target)  # atomic; fails when another writer took the number meanwhile
         except OSError:
             raise DossierError(f"release {number} of {system_id} appeared while this one was being written; "
                                "nothing was overwritten. Fix: run the release again.") from None
+        fsync_path(target.parent, folder=True)
     finally:
         if staging.exists():
             _make_writable(staging)

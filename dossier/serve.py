@@ -168,8 +168,9 @@ class _Handler(SimpleHTTPRequestHandler):
     """Serves the built site; quiet but for errors, and tells browsers to revalidate every page."""
 
     def send_head(self):
-        # write_site swaps the new site in with two renames: for an instant the folder is absent. Wait that out
-        # rather than answer 404.
+        # Where write_site cannot exchange the two folders in one step (not Linux, or a file system without
+        # renameat2's RENAME_EXCHANGE) it swaps them with two renames: for an instant the folder is absent. Wait
+        # that out rather than answer 404.
         deadline = time.monotonic() + 1.0
         while not os.path.isdir(self.directory) and time.monotonic() < deadline:
             time.sleep(0.01)
