@@ -99,6 +99,8 @@ def rc_params() -> dict[str, object]:
     from cycler import cycler
 
     return {
+        # names from the evidence (instruments, bands) may hold '$': never read them as formulas (none are used)
+        "text.parse_math": False,
         "font.family": [FONT_FAMILY],
         "font.size": 9.0,
         "axes.titlesize": 10.5,

@@ -71,9 +71,15 @@ def search_index_js(rows: list[dict[str, Any]]) -> str:
     """``search-index.js``: ``window.DOSSIER_SEARCH = {"systems": [...], "words": {word: [row, ...]}}``."""
     words: dict[str, list[int]] = {}
     for i, row in enumerate(rows):
-        for word in sorted(_words(search_text(row["result"]))):
+        # a row of the incremental build carries its system's text already (dossier.site.system_unit)
+        text = row["search_text"] if "search_text" in row else search_text(row["result"])
+        for word in sorted(_words(text)):
             words.setdefault(word, []).append(i)
     doc = {"systems": [row["id"] for row in rows], "words": dict(sorted(words.items()))}
-    text = json.dumps(doc, ensure_ascii=True, separators=(",", ":"), sort_keys=True).replace("</", "<\\/")
+    # ASCII only (so U+2028 and U+2029 are escapes, as older parsers need), and '<', '>', '&' as \u escapes: they
+    # occur only inside strings, so the file cannot end a <script> element or open an HTML comment even if
+    # it is ever inlined in a page, and stays the same JavaScript value.
+    text = json.dumps(doc, ensure_ascii=True, separators=(",", ":"), sort_keys=True)
+    text = text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
     return ("// Built by dossier: the words of each system's id, title, components, pairs and notes.\n"
             f"window.DOSSIER_SEARCH = {text};\n")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from functools import lru_cache
 from pathlib import Path
 
@@ -32,6 +33,19 @@ def fmt_quantity(q) -> str:
     if q.unit:
         text += f" {q.unit}"
     return text
+
+
+_WEB_URL = re.compile(r"https?://[^\x00-\x20\x7f]+", re.IGNORECASE)
+
+
+def is_web_url(url: object) -> bool:
+    """Whether a URL of the evidence may become a link: ``http(s)://`` with no white space or control character.
+
+    Anything else (``javascript:``, ``data:``, ``vbscript:``, a relative path,
+    a scheme hidden behind spaces or tabs, which browsers strip) is shown as
+    text only: a reference's ``url`` is free text from many hands.
+    """
+    return isinstance(url, str) and _WEB_URL.fullmatch(url) is not None
 
 
 def fmt_strength(value: float | None) -> str:
@@ -68,6 +82,7 @@ def environment():
         measured=fmt_measured,
         outcome_words=lambda o: OUTCOME_WORDS[o],
     )
+    env.tests["web_url"] = is_web_url
     return env
 
 

@@ -1,7 +1,9 @@
 """Markdown notes to HTML with markdown-it-py, raw HTML off.
 
 Raw HTML in a note is shown as text, never passed through: notes come from
-many hands and the site must stay static and safe.
+many hands and the site must stay static and safe. Images are off too (their
+text is kept): a remote image would load from elsewhere on every visit and
+break the site offline.
 """
 
 from __future__ import annotations
@@ -13,7 +15,7 @@ from functools import lru_cache
 def _parser():
     from markdown_it import MarkdownIt
 
-    return MarkdownIt("commonmark", {"html": False, "linkify": False, "typographer": False}).enable("table")
+    return MarkdownIt("commonmark", {"html": False, "linkify": False, "typographer": False}).enable("table").disable("image")
 
 
 def render_markdown(text: str) -> str:
