@@ -1,6 +1,6 @@
 """Benchmark of ``dossier screen``: compute time, speed-up over a per-pair loop, memory when streaming.
 
-Run with ``python benchmarks/screen.py [N] [N_STREAM] [CHUNK]`` (defaults 10^4, 5×10^4 and 10^4: the
+Run with ``python benchmarks/screen.py [N] [N_STREAM] [CHUNK] [--dask]`` (defaults 10^4, 5×10^4 and 10^4: the
 targets are for 10^6 and 10^7 pairs, which the present parallax Bayes factor makes too slow to run
 routinely; the figures are scaled to 10^6 and the README says so).
 
@@ -11,6 +11,9 @@ routinely; the figures are scaled to 10^6 and the README says so).
    through their scalar path), scaled to N: target ≥ 100× slower.
 3. ``dossier screen`` on a Parquet file of N_STREAM pairs in a fresh process,
    reporting its peak resident memory: target ≤ 1 GB for 10^7.
+4. Only with ``--dask``: ``dossier screen --engine dask`` on the same N_STREAM pairs
+   as a folder of Parquet files of CHUNK pairs each, on a local cluster of one
+   worker process per core (start-up of the cluster included), beside 3.
 
 The pairs are invented (seeded): a mix of physical pairs (shared parallax
 and motion) and optical ones.
@@ -126,10 +129,29 @@ def streamed(n: int, folder: Path, chunk: int) -> tuple[float, float]:
     return seconds, peak_mb
 
 
+def streamed_dask(n: int, folder: Path, chunk: int) -> float:
+    """Seconds of `dossier screen --engine dask` on the pairs of `streamed`, as Parquet files of `chunk` pairs."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    (folder / "pairs").mkdir()
+    k = 0
+    for first in range(0, n, 1_000_000):
+        table = pa.table(synthetic_pairs(min(1_000_000, n - first), seed=first + 3))
+        for start in range(0, table.num_rows, chunk):
+            pq.write_table(table.slice(start, chunk), folder / "pairs" / f"pairs-{k:05d}.parquet")
+            k += 1
+    start = time.perf_counter()
+    subprocess.run([sys.executable, "-m", "dossier", "screen", str(folder / "pairs"), "--out", str(folder / "result"),
+                    "--engine", "dask", "--chunk", str(chunk)], check=True, stdout=subprocess.DEVNULL)
+    return time.perf_counter() - start
+
+
 def main() -> int:
-    n = int(sys.argv[1]) if len(sys.argv) > 1 else 10_000
-    n_stream = int(sys.argv[2]) if len(sys.argv) > 2 else 50_000
-    chunk = int(sys.argv[3]) if len(sys.argv) > 3 else 10_000
+    args = [a for a in sys.argv[1:] if a != "--dask"]
+    n = int(args[0]) if len(args) > 0 else 10_000
+    n_stream = int(args[1]) if len(args) > 1 else 50_000
+    chunk = int(args[2]) if len(args) > 2 else 10_000
     compute = in_memory(n)
     per_million = compute * 1e6 / n
     loop = per_pair_loop(200)
@@ -142,6 +164,14 @@ def main() -> int:
         seconds, peak = streamed(n_stream, Path(tmp), chunk)
     print(f"dossier screen on {n_stream:,} pairs (Parquet, chunks of {chunk:,}): {seconds:.1f} s, peak memory "
           f"{peak:.0f} MB   target ≤ 1024 MB: {'ok' if peak <= 1024 else 'MISSED'}")
+    if "--dask" in sys.argv[1:]:
+        from dask.system import CPU_COUNT
+
+        with tempfile.TemporaryDirectory() as tmp:
+            on_dask = streamed_dask(n_stream, Path(tmp), chunk)
+        print(f"dossier screen --engine dask on the same pairs ({-(-n_stream // chunk)} Parquet files, local cluster "
+              f"of {CPU_COUNT} worker processes, start-up included): {on_dask:.1f} s, "
+              f"{seconds / on_dask:.2f}× the speed of one process")
     return 0
 
 

@@ -6,7 +6,8 @@ together. Their results are stored as JSON under
 ``<project>/.dossier-cache/`` with a key that hashes the exact inputs, the
 settings and the dossier version, so a stale entry can never be used: a
 changed velocity, setting or program gives a different key. Deleting the
-folder is always safe. Writes go to a temporary file renamed into place.
+folder is always safe. Writes go to a temporary file, flushed to disk and
+renamed into place.
 """
 
 from __future__ import annotations
@@ -47,6 +48,20 @@ class Cache:
         self._store(path, json.dumps(result).encode())
         return result
 
+    def get_json(self, kind: str, inputs: Any) -> Any | None:
+        """The stored JSON value for these inputs, or ``None`` (nothing stored, unreadable, or no cache)."""
+        if self.root is None:
+            return None
+        try:
+            return json.loads((self.root / f"{self.key(kind, inputs)}.json").read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            return None
+
+    def put_json(self, kind: str, inputs: Any, value: Any) -> None:
+        """Store a JSON value for these inputs (read back equal: floats round-trip, tuples become lists)."""
+        if self.root is not None:
+            self._store(self.root / f"{self.key(kind, inputs)}.json", json.dumps(value).encode())
+
     def get_bytes(self, kind: str, inputs: Any) -> bytes | None:
         """Stored bytes (a rendered PDF) for these inputs, or ``None``."""
         if self.root is None:
@@ -61,11 +76,19 @@ class Cache:
             self._store(self.root / f"{self.key(kind, inputs)}.bin", data)
 
     def _store(self, path: Path, data: bytes) -> None:
+        tmp = None
         try:
             path.parent.mkdir(exist_ok=True)
             fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-")
             with os.fdopen(fd, "wb") as fh:
                 fh.write(data)
+                fh.flush()
+                os.fsync(fh.fileno())  # a cached PDF is served as it is: never a truncated one after a power cut
             os.replace(tmp, path)
         except OSError:
-            pass  # a read-only project still weighs; it only loses the speed-up
+            # a read-only project still weighs; it only loses the speed-up (and a full disk keeps no half file)
+            if tmp is not None:
+                try:
+                    os.unlink(tmp)
+                except OSError:
+                    pass

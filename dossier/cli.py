@@ -3,6 +3,13 @@
 Heavy libraries (scipy, matplotlib, astropy) are imported inside the
 commands that need them, so ``dossier --help`` and ``dossier check`` start
 quickly. Tracebacks are shown only with ``--debug``.
+
+Exit codes: 0 success; 1 problems found (or a failed check); 2 an error the
+user can act on (:class:`~dossier.errors.DossierError`) or a usage error;
+74 (``EX_IOERR`` of sysexits.h) the system refused a read or a write (no
+such file, permission denied, disk full); 70 (``EX_SOFTWARE``) a bug in
+Dossier: the full traceback goes into a crash report file (see
+:func:`write_crash_report`) and the user is asked to send it.
 """
 
 from __future__ import annotations
@@ -15,6 +22,72 @@ import click
 
 from dossier import __version__
 from dossier.errors import DossierError, ProblemsFound
+
+
+#: sysexits.h: an internal software error (a bug), and an input/output error of the system.
+EX_SOFTWARE = 70
+EX_IOERR = 74
+#: Key packages whose versions a crash report names (read from their metadata, never imported).
+REPORTED_PACKAGES = ("click", "pydantic", "jinja2", "ruamel.yaml", "numpy", "scipy", "astropy", "matplotlib",
+                     "weasyprint", "markdown-it-py", "rich", "pyarrow")
+
+
+def crash_report_text(exc: BaseException) -> str:
+    """A crash report: Dossier's and Python's versions, the platform, the command line and the full traceback."""
+    import datetime as dt
+    import os
+    import platform
+    import shlex
+    import traceback
+    from importlib.metadata import PackageNotFoundError, version
+
+    def installed(name: str) -> str:
+        try:
+            return version(name)
+        except PackageNotFoundError:
+            return "not installed"
+
+    lines = [
+        "Dossier crash report",
+        f"dossier: {__version__}",
+        f"python: {sys.version.replace(chr(10), ' ')} ({sys.executable})",
+        f"platform: {platform.platform()}",
+        f"command line: {shlex.join(sys.argv)}",
+        f"working folder: {os.getcwd()}",
+        f"time: {dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat()}",
+        "packages: " + ", ".join(f"{name} {installed(name)}" for name in REPORTED_PACKAGES),
+        "",
+        *traceback.format_exception(exc),
+    ]
+    return "\n".join(line.rstrip("\n") for line in lines) + "\n"
+
+
+def write_crash_report(exc: BaseException) -> Path:
+    """Write :func:`crash_report_text` to a new file in the system's temporary folder; return its path.
+
+    The temporary folder (``$TMPDIR``, else ``/tmp``), not the project: a
+    crash may happen before a project is known, or in a project that cannot
+    be written. The file is readable by its owner only (it holds paths).
+    """
+    import datetime as dt
+    import os
+    import tempfile
+
+    stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    fd, name = tempfile.mkstemp(prefix=f"dossier-crash-{stamp}-", suffix=".txt")
+    with os.fdopen(fd, "w", encoding="utf-8") as handle:
+        handle.write(crash_report_text(exc))
+    return Path(name)
+
+
+def _os_error_text(exc: OSError) -> str:
+    """``Permission denied: '/some/path'``: what the system said, and about which file(s)."""
+    said = exc.strerror or str(exc)
+    if exc.filename is not None and exc.filename2 is not None:
+        return f"{said}: {exc.filename!r} -> {exc.filename2!r}"
+    if exc.filename is not None:
+        return f"{said}: {exc.filename!r}"
+    return said
 
 
 class _Group(click.Group):
@@ -37,6 +110,29 @@ class _Group(click.Group):
                 raise
             click.echo(f"error: {exc}", err=True)
             ctx.exit(exc.exit_code)
+        except (click.exceptions.Exit, click.exceptions.Abort, click.ClickException):
+            raise  # click's own ways out (Exit and Abort are RuntimeErrors): it prints and exits
+        except OSError as exc:
+            import errno
+
+            if ctx.meta.get("debug") or exc.errno == errno.EPIPE:  # a closed pipe (| head): click ends quietly
+                raise
+            click.echo(f"error: {_os_error_text(exc)}. Fix: check that the path exists, that you may read and write "
+                       "it, and that its disk has room (--debug shows where it happened).", err=True)
+            ctx.exit(EX_IOERR)
+        except Exception as exc:  # a bug: a short note and a crash report, not a traceback
+            if ctx.meta.get("debug"):
+                raise
+            click.echo(f"Dossier {__version__} hit an internal error (this is a bug, not a problem with your files): "
+                       f"{type(exc).__name__}: {exc}", err=True)
+            try:
+                report = write_crash_report(exc)
+            except OSError:  # nowhere to write it: show it here instead
+                click.echo(crash_report_text(exc), err=True, nl=False)
+                click.echo("Please send the report above to the maintainers with the command you ran.", err=True)
+            else:
+                click.echo(f"Please send {report} to the maintainers with the command you ran.", err=True)
+            ctx.exit(EX_SOFTWARE)
 
 
 @click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
@@ -95,11 +191,38 @@ def weigh(project: Path, system_id: str | None, as_json: bool) -> None:
               help="Folder to write the site into (created; its previous content is replaced).")
 @click.option("--pdf/--no-pdf", default=True, show_default=True,
               help="Write a PDF of each dossier (--no-pdf for a quicker preview).")
-def build(project: Path, out_dir: Path, pdf: bool) -> None:
-    """Build the static dossier site of a project, its releases and a PDF of each dossier."""
+@click.option("--progress/--no-progress", default=None,
+              help="Show a progress bar on standard error while systems are weighed, drawn and rendered "
+                   "(default: when standard error is a terminal).")
+@click.option("--jobs", type=click.IntRange(min=1), metavar="N",
+              help="Processes that weigh, draw and render changed systems (default: one per CPU core when "
+                   "there are many, else one).")
+def build(project: Path, out_dir: Path, pdf: bool, progress: bool | None, jobs: int | None) -> None:
+    """Build the static dossier site of a project, its releases and a PDF of each dossier.
+
+    Unchanged systems come from the project's cache (.dossier-cache/); when
+    nothing changed since the last build into the same folder, nothing is written.
+    """
+    import contextlib
+
     from dossier.site import build as build_site
 
-    index = build_site(project, out_dir, pdf=pdf)
+    show = sys.stderr.isatty() if progress is None else progress
+    with contextlib.ExitStack() as stack:
+        bar: list = []  # made at the first system computed: an unchanged project shows no bar
+
+        def advance(done: int, total: int) -> None:
+            if not bar:
+                from rich.console import Console
+                from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+
+                shown = stack.enter_context(Progress("[progress.description]{task.description}", BarColumn(),
+                                                     MofNCompleteColumn(), TimeElapsedColumn(),
+                                                     console=Console(stderr=True), transient=True))
+                bar.extend([shown, shown.add_task("weighing, drawing and rendering systems", total=total)])
+            bar[0].update(bar[1], completed=done)
+
+        index = build_site(project, out_dir, pdf=pdf, workers=jobs, progress=advance if show else None)
     click.echo(f"Built {index.parent} — open {index}")
 
 
@@ -192,20 +315,41 @@ from dossier.cli_release import diff as _diff, release as _release; cli.add_comm
 
 
 @cli.command()
-@click.argument("pairs", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, path_type=Path),
-              help="Result table: .csv or .parquet (written only when every pair was screened).")
+@click.argument("pairs", type=click.Path(path_type=Path))
+@click.option("--out", "out_path", required=True, type=click.Path(path_type=Path),
+              help="Result: a .csv or .parquet file; with --engine dask, a folder of Parquet parts (written only "
+                   "when every pair was screened).")
 @click.option("--map", "mapping", multiple=True, metavar="COLUMN=FIELD", help="Read COLUMN as FIELD (repeatable).")
 @click.option("--settings", "settings_path", type=click.Path(dir_okay=False, path_type=Path),
               help="A dossier.toml whose verdict thresholds, rule settings and field-star densities to use.")
 @click.option("--chunk", "chunk_rows", type=click.IntRange(min=1000), default=250_000, show_default=True,
-              help="Pairs per chunk: memory grows with it.")
-def screen(pairs: Path, out_path: Path, mapping: tuple[str, ...], settings_path: Path | None, chunk_rows: int) -> None:
-    """Screen a table of candidate pairs (CSV or Parquet) with the pair rules and the verdict."""
+              help="Pairs per chunk: memory grows with it. With --engine dask, also the size of a partition.")
+@click.option("--engine", type=click.Choice(["local", "dask"]), default="local", show_default=True,
+              help="local: stream the table in this process; dask: screen the partitions of a Parquet file or "
+                   "of a folder of Parquet (or CSV) files in parallel on a dask cluster.")
+@click.option("--scheduler", metavar="ADDRESS",
+              help="With --engine dask: a running dask scheduler, like tcp://host:8786 (its workers must see PAIRS "
+                   "and RESULT at the same paths). Default: a local cluster on this machine's cores.")
+@click.option("--workers", type=click.IntRange(min=1),
+              help="With --engine dask and no --scheduler: worker processes of the local cluster (default: one "
+                   "per core).")
+def screen(pairs: Path, out_path: Path, mapping: tuple[str, ...], settings_path: Path | None, chunk_rows: int,
+           engine: str, scheduler: str | None, workers: int | None) -> None:
+    """Screen a table of candidate pairs (CSV or Parquet) with the pair rules and the verdict.
+
+    With --engine dask, PAIRS may be a folder of Parquet files (a partitioned dataset) and RESULT is a
+    folder of Parquet parts, one per partition, in the order of the input.
+    """
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
-    from dossier.screen import parse_map, screen as run_screen
+    from dossier.screen import parse_map, screen as run_screen, screen_dask
 
+    if engine == "local" and (scheduler or workers):
+        raise DossierError(f"{'--scheduler' if scheduler else '--workers'} applies to the dask engine only. "
+                           "Fix: add --engine dask.")
+    if scheduler and workers:
+        raise DossierError("--workers sizes the local cluster; a scheduler given with --scheduler has its own "
+                           "workers. Fix: leave out one of them.")
     settings = None
     if settings_path is not None:
         settings, problems = load_settings_file(settings_path)
@@ -215,7 +359,12 @@ def screen(pairs: Path, out_path: Path, mapping: tuple[str, ...], settings_path:
     with Progress("[progress.description]{task.description}", BarColumn(), MofNCompleteColumn(),
                   TimeElapsedColumn(), transient=True) as bar:
         task = bar.add_task("screening pairs", total=None)
-        n = run_screen(pairs, out_path, names, settings, chunk_rows, progress=lambda k: bar.advance(task, k))
+        advance = lambda k: bar.advance(task, k)  # noqa: E731
+        if engine == "dask":
+            n = screen_dask(pairs, out_path, names, settings, chunk_rows, scheduler=scheduler, workers=workers,
+                            progress=advance)
+        else:
+            n = run_screen(pairs, out_path, names, settings, chunk_rows, progress=advance)
     click.echo(f"screened {n} pair(s) into {out_path}")
 
 

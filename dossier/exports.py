@@ -33,18 +33,28 @@ def _nan(x: float | None) -> float:
     return math.nan if x is None else float(x)
 
 
+def pair_rows(sid: str, result: SystemResult) -> list[tuple]:
+    """The catalogue's rows of one system, one per pair (values in the order of :data:`COLUMNS`)."""
+    rows = []
+    for pair in result.system.pairs:
+        v = result.verdicts[pair.id]
+        f = result.facts.pairs[pair.id]
+        dist = result.facts.pair_distance_pc(pair.id)
+        rows.append((sid, pair.id, pair.members[0], pair.members[1], v.status, _nan(v.probability),
+                     _nan(v.p_physical), _nan(v.p_bound_given_physical), float(v.log10_odds),
+                     _nan(f.rho_arcsec), _nan(f.theta_deg), _nan(dist[1] if dist else None)))
+    return rows
+
+
 def catalogue_table(results: dict[str, SystemResult]):
+    return rows_table([row for sid, result in results.items() for row in pair_rows(sid, result)])
+
+
+def rows_table(rows: list[tuple]):
+    """The catalogue table from :func:`pair_rows` of every system (the incremental build caches them)."""
     from astropy.table import Table
 
-    rows = []
-    for sid, result in results.items():
-        for pair in result.system.pairs:
-            v = result.verdicts[pair.id]
-            f = result.facts.pairs[pair.id]
-            dist = result.facts.pair_distance_pc(pair.id)
-            rows.append((sid, pair.id, pair.members[0], pair.members[1], v.status, _nan(v.probability),
-                         _nan(v.p_physical), _nan(v.p_bound_given_physical), float(v.log10_odds),
-                         _nan(f.rho_arcsec), _nan(f.theta_deg), _nan(dist[1] if dist else None)))
+    rows = [tuple(row) for row in rows]
     table = Table(rows=rows, names=[c[0] for c in COLUMNS],
                   dtype=[str, str, str, str, str] + [float] * 7) if rows else Table(names=[c[0] for c in COLUMNS])
     for name, unit, description in COLUMNS:
@@ -56,12 +66,20 @@ def catalogue_table(results: dict[str, SystemResult]):
 
 
 def catalogue_ecsv(results: dict[str, SystemResult]) -> str:
-    buffer = io.StringIO()
-    catalogue_table(results).write(buffer, format="ascii.ecsv")
-    return buffer.getvalue()
+    return ecsv_text(catalogue_table(results))
 
 
 def catalogue_votable(results: dict[str, SystemResult]) -> str:
+    return votable_text(catalogue_table(results))
+
+
+def ecsv_text(table) -> str:
+    buffer = io.StringIO()
+    table.write(buffer, format="ascii.ecsv")
+    return buffer.getvalue()
+
+
+def votable_text(table) -> str:
     buffer = io.BytesIO()
-    catalogue_table(results).write(buffer, format="votable")
+    table.write(buffer, format="votable")
     return buffer.getvalue().decode("utf-8")

@@ -41,14 +41,35 @@ def system_dict(result: SystemResult) -> dict[str, Any]:
 
 
 def to_json(title: str, results: dict[str, SystemResult]) -> str:
+    return systems_json(title, [system_dict(r) for r in results.values()])
+
+
+def systems_json(title: str, systems: list[dict[str, Any]]) -> str:
+    """The JSON of ``dossier weigh --json`` from :func:`system_dict` of each system (cached ones included)."""
     doc = {
         "format": "dossier-weigh",
         "format_version": FORMAT_VERSION,
         "dossier_version": __version__,
         "project": title,
-        "systems": [system_dict(r) for r in results.values()],
+        "systems": systems,
     }
     return json.dumps(_clean(doc), indent=2, ensure_ascii=False) + "\n"
+
+
+def system_json_item(system: dict[str, Any]) -> str:
+    """One system's entry of :func:`systems_json`'s list as text, for :func:`join_systems_json`."""
+    text = json.dumps(_clean(system), indent=2, ensure_ascii=False)
+    return "\n".join("    " + line for line in text.split("\n"))  # JSON text has no line break inside a string
+
+
+def join_systems_json(title: str, items: list[str]) -> str:
+    """:func:`systems_json` from :func:`system_json_item` of each system: the same bytes, without
+    serialising again the systems whose entry is cached."""
+    empty = systems_json(title, [])
+    if not items:
+        return empty
+    tail = '"systems": []\n}\n'
+    return empty[: -len(tail)] + '"systems": [\n' + ",\n".join(items) + "\n  ]\n}\n"
 
 
 STATUS_STYLE = {"bound": "bold green", "co-moving": "bold cyan", "optical": "bold red", "undetermined": "bold yellow"}

@@ -10,6 +10,11 @@ and writes one row per pair (CSV or Parquet, by the extension of RESULT).
 Because ``weigh`` computes its numbers through the same kernels, the two give
 the same numbers for the same pair.
 
+With ``--engine dask`` (:func:`screen_dask`), PAIRS may also be a folder of
+Parquet (or CSV) files; each partition (a CSV file, or about ``--chunk`` pairs
+of whole row groups of a Parquet file) goes through the same reader, kernels
+and writer on a dask worker, into one Parquet part of the folder RESULT.
+
 Input columns (``--map column=field`` renames others): see :data:`FIELDS`.
 Output columns: see :data:`OUTPUT_COLUMNS` (also in the README).
 """
@@ -17,8 +22,10 @@ Output columns: see :data:`OUTPUT_COLUMNS` (also in the README).
 from __future__ import annotations
 
 import os
+import re
 import tempfile
 from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -55,6 +62,8 @@ OUTPUT_COLUMNS: dict[str, str] = {
 }
 
 DEFAULT_CHUNK = 250_000
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)
 
 
 def parse_map(pairs: tuple[str, ...]) -> dict[str, str]:
@@ -130,14 +139,24 @@ def _first_bad(col) -> int:
     return 0
 
 
-def read_chunks(path: Path, names: dict[str, str], chunk_rows: int = DEFAULT_CHUNK) -> Iterator[Table]:
-    """The pairs of a CSV or Parquet file, ``chunk_rows`` at a time (memory bounded by the chunk)."""
+def read_chunks(path: Path, names: dict[str, str], chunk_rows: int = DEFAULT_CHUNK, *,
+                row_groups: tuple[int, ...] | None = None, first_row: int = 0,
+                source: str | None = None) -> Iterator[Table]:
+    """The pairs of a CSV or Parquet file, ``chunk_rows`` at a time (memory bounded by the chunk).
+
+    ``row_groups`` reads only those row groups of a Parquet file, whose first row is row ``first_row``
+    of the file (so that errors name the right row); ``source`` is the name errors give the file.
+    """
     path = Path(path)
+    source = source or str(path)
+    if path.is_dir():
+        raise DossierError(f"{source}: is a folder; the local engine reads one file. Fix: give a CSV or Parquet "
+                           "file, or screen the folder's Parquet files with --engine dask.")
     if not path.is_file():
-        raise DossierError(f"{path}: no such file. Fix: give the path of a CSV or Parquet table of pairs.")
+        raise DossierError(f"{source}: no such file. Fix: give the path of a CSV or Parquet table of pairs.")
     import pyarrow as pa
 
-    row = 0
+    row = first_row
     if _kind(path) == "csv":
         import pyarrow.csv as pcsv
 
@@ -147,13 +166,22 @@ def read_chunks(path: Path, names: dict[str, str], chunk_rows: int = DEFAULT_CHU
             reader = pcsv.open_csv(path, read_options=pcsv.ReadOptions(block_size=1 << 22),
                                    convert_options=pcsv.ConvertOptions(strings_can_be_null=True))
         except pa.ArrowInvalid as exc:
-            raise DossierError(f"{path}: not a readable CSV table ({exc}). Fix: one header row, then one pair per "
+            raise DossierError(f"{source}: not a readable CSV table ({exc}). Fix: one header row, then one pair per "
                                "row, separated by commas.") from None
         batches = reader
     else:
         import pyarrow.parquet as pq
 
-        batches = pq.ParquetFile(path).iter_batches(batch_size=chunk_rows)
+        try:
+            # one row group at a time, without read-ahead: memory is bounded by the chunk and the file's
+            # largest row group, whatever the number of rows
+            file = pq.ParquetFile(path, pre_buffer=False)
+            groups = range(file.num_row_groups) if row_groups is None else row_groups
+            batches = (batch for group in groups
+                       for batch in file.iter_batches(batch_size=chunk_rows, row_groups=[group], use_threads=False))
+        except pa.ArrowInvalid as exc:
+            raise DossierError(f"{source}: not a readable Parquet file ({exc}). Fix: rewrite it with a Parquet "
+                               "writer, or give a CSV table.") from None
     pending = []
     size = 0
     try:
@@ -161,13 +189,13 @@ def read_chunks(path: Path, names: dict[str, str], chunk_rows: int = DEFAULT_CHU
             pending.append(batch)
             size += batch.num_rows
             if size >= chunk_rows:
-                yield from _flush(pending, names, str(path), row)
+                yield from _flush(pending, names, source, row)
                 row += size
                 pending, size = [], 0
     except pa.ArrowInvalid as exc:  # a malformed line deep in a CSV file
-        raise DossierError(f"{path}: {exc}. Fix: correct that line; nothing was written.") from None
+        raise DossierError(f"{source}: {exc}. Fix: correct that line; nothing was written.") from None
     if pending:
-        yield from _flush(pending, names, str(path), row)
+        yield from _flush(pending, names, source, row)
 
 
 def _flush(batches, names, source, first_row) -> Iterator[Table]:
@@ -182,10 +210,11 @@ def _flush(batches, names, source, first_row) -> Iterator[Table]:
 class Writer:
     """Write result chunks to a temporary file, renamed into place only when all went well."""
 
-    def __init__(self, path: Path):
+    def __init__(self, path: Path, make_parent: bool = True):
         self.path = Path(path)
         self.kind = _kind(self.path)
-        self.path.parent.mkdir(parents=True, exist_ok=True)
+        if make_parent:  # the dask engine's parts never recreate a temporary folder removed after a failure
+            self.path.parent.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(dir=self.path.parent, prefix=f".{self.path.name}.", suffix=".tmp")
         os.close(fd)
         self.tmp = Path(tmp)
@@ -210,6 +239,7 @@ class Writer:
         if self._writer is not None:
             self._writer.close()
         if ok:
+            os.chmod(self.tmp, 0o666 & ~_UMASK)  # as an ordinary new file, not mkstemp's owner-only mode
             os.replace(self.tmp, self.path)
         else:
             self.tmp.unlink(missing_ok=True)
@@ -352,25 +382,259 @@ def _chance(c, rho, settings, rule_config, length) -> dict[str, np.ndarray]:
         table_density_errors=np.array([row.per_square_degree.uncertainty for row in table], float))
 
 
+def _default_settings():
+    from dossier.schema.settings import Settings
+
+    return Settings.model_validate({"project": {"title": "screen"}})
+
+
+def _screen_stream(tables: Iterator[Table], writer: Writer, settings,
+                   progress: Callable[[int], None] | None = None) -> int:
+    """Screen every chunk of ``tables`` into ``writer``; the loop both engines run."""
+    done = 0
+    for table in tables:
+        writer.write(screen_table(table, settings))
+        done += len(table)
+        if progress is not None:
+            progress(len(table))
+    return done
+
+
 def screen(pairs: Path, out: Path, names: dict[str, str] | None = None, settings=None,
            chunk_rows: int = DEFAULT_CHUNK, progress: Callable[[int], None] | None = None) -> int:
     """Screen every pair of ``pairs`` into ``out``; return the number of pairs.
 
     Nothing is written to ``out`` unless every chunk succeeds.
     """
-    from dossier.schema.settings import Settings
-
-    settings = settings or Settings.model_validate({"project": {"title": "screen"}})
+    if Path(out).is_dir():
+        raise DossierError(f"{out}: is a folder; the local engine writes one .csv or .parquet file. Fix: give a file "
+                           "name, or use --engine dask, which writes a folder of Parquet parts.")
+    settings = settings or _default_settings()
     writer = Writer(out)
-    done = 0
     ok = False
     try:
-        for table in read_chunks(pairs, names or {}, chunk_rows):
-            writer.write(screen_table(table, settings))
-            done += len(table)
-            if progress is not None:
-                progress(len(table))
+        done = _screen_stream(read_chunks(pairs, names or {}, chunk_rows), writer, settings, progress)
         ok = True
     finally:
         writer.close(ok)
     return done
+
+
+# ----------------------------------------------------------------------------
+# The dask engine: the same reading, kernels and writing, one partition per task
+
+
+#: Seconds to wait for a dask scheduler given with ``--scheduler``.
+CONNECT_TIMEOUT = 20
+PART_PATTERN = re.compile(r"part-\d+\.parquet")
+DASK_MISSING = ("the dask engine needs the optional packages dask and distributed, which are not installed. "
+                "Fix: pip install 'dossier[dask]'.")
+
+
+@dataclass(frozen=True)
+class Partition:
+    """One task of the dask engine: a CSV file, or consecutive row groups of a Parquet file."""
+
+    path: str                         # absolute, so that a worker in another folder or machine finds it
+    source: str                       # the name errors give it: the path as the user wrote it
+    row_groups: tuple[int, ...] | None  # None: the whole file
+    first_row: int                    # row of the file the partition starts at (0-based)
+    name: str = ""                    # its part of the result: part-00000.parquet, …
+
+
+def partitions(pairs: Path, chunk_rows: int = DEFAULT_CHUNK) -> list[Partition]:
+    """The partitions of a Parquet or CSV file, or of a folder of them (a partitioned dataset).
+
+    A folder is searched recursively for ``.parquet``, ``.pq`` and ``.csv`` files, in the order of
+    their paths, skipping names that begin with ``.`` or ``_`` (as Parquet dataset readers do). A
+    Parquet file is cut between row groups into partitions of about ``chunk_rows`` pairs (at least
+    one row group each); a CSV file is one partition.
+    """
+    pairs = Path(pairs)
+    if pairs.is_dir():
+        files = sorted(p for p in pairs.rglob("*")
+                       if p.suffix.lower() in (".parquet", ".pq", ".csv") and p.is_file()
+                       and not any(n.startswith((".", "_")) for n in p.relative_to(pairs).parts))
+        if not files:
+            raise DossierError(f"{pairs}: no .parquet or .csv files in this folder. Fix: give a folder of Parquet "
+                               "files of pairs (a partitioned dataset), or one file.")
+    elif pairs.is_file():
+        _kind(pairs)
+        files = [pairs]
+    else:
+        raise DossierError(f"{pairs}: no such file or folder. Fix: give a Parquet or CSV table of pairs, or a "
+                           "folder of Parquet files.")
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    found: list[Partition] = []
+    for file in files:
+        path, source = str(file.resolve()), str(file)
+        if _kind(file) == "csv":
+            found.append(Partition(path, source, None, 0))
+            continue
+        try:
+            meta = pq.ParquetFile(file).metadata
+        except (pa.ArrowInvalid, OSError) as exc:
+            raise DossierError(f"{source}: not a readable Parquet file ({exc}). Fix: rewrite it with a Parquet "
+                               "writer, or move it out of the folder.") from None
+        group: list[int] = []
+        start = offset = rows = 0
+        for i in range(meta.num_row_groups):
+            n = meta.row_group(i).num_rows
+            if group and rows + n > chunk_rows:
+                if rows:
+                    found.append(Partition(path, source, tuple(group), start))
+                group, rows = [], 0
+            if not group:
+                start = offset
+            group.append(i)
+            rows += n
+            offset += n
+        if group and rows:
+            found.append(Partition(path, source, tuple(group), start))
+    width = max(5, len(str(len(found) - 1)))
+    return [Partition(p.path, p.source, p.row_groups, p.first_row, f"part-{i:0{width}d}.parquet")
+            for i, p in enumerate(found)]
+
+
+def screen_partition(part: Partition, folder: str, names: dict[str, str], settings, chunk_rows: int) -> int:
+    """Screen one partition into ``folder/part.name`` (run on a dask worker); return its number of pairs."""
+    writer = Writer(Path(folder) / part.name, make_parent=False)
+    done = 0
+    try:
+        done = _screen_stream(read_chunks(Path(part.path), names, chunk_rows, row_groups=part.row_groups,
+                                          first_row=part.first_row, source=part.source), writer, settings)
+    finally:
+        writer.close(done > 0)  # an empty partition leaves no part (an empty file is not Parquet)
+    return done
+
+
+def screen_dask(pairs: Path, out: Path, names: dict[str, str] | None = None, settings=None,
+                chunk_rows: int = DEFAULT_CHUNK, scheduler: str | None = None, workers: int | None = None,
+                progress: Callable[[int], None] | None = None) -> int:
+    """Screen every pair of ``pairs`` (a file, or a folder of Parquet or CSV files) into the folder ``out``,
+    one Parquet part per partition, on a dask cluster; return the number of pairs.
+
+    ``scheduler`` is the address of a running dask scheduler (its workers must see ``pairs`` and ``out``
+    at the same paths, and have Dossier installed); without it a local cluster of ``workers`` processes
+    (default: one per core) is started and closed afterwards. The parts are written into a temporary
+    folder beside ``out``, renamed to ``out`` only when every partition succeeded.
+    """
+    try:
+        import distributed
+    except ImportError:
+        raise DossierError(DASK_MISSING) from None
+    out = Path(out)
+    if _kind_of_result(out) == "csv":
+        raise DossierError(f"{out}: the dask engine writes a folder of Parquet parts, not a CSV file. Fix: give a "
+                           "folder name (result/ or result.parquet), or use --engine local for one CSV file.")
+    _check_replaceable(out)
+    if Path(pairs).is_dir() and Path(pairs).resolve() in (out.resolve(), *out.resolve().parents):
+        raise DossierError(f"{out}: is inside the folder of pairs {pairs}, whose next screen would read it. Fix: "
+                           "write the result outside that folder.")
+    settings = settings or _default_settings()
+    parts = partitions(pairs, chunk_rows)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(dir=out.parent, prefix=f".{out.name}.", suffix=".tmp"))
+    ok = False
+    done = 0
+    try:
+        with _client(distributed, scheduler, workers) as client:
+            futures = client.map(screen_partition, parts, folder=str(tmp.resolve()), names=names or {},
+                                 settings=settings, chunk_rows=chunk_rows, pure=False)
+            which = dict(zip(futures, parts))
+            try:
+                for future in distributed.as_completed(futures, loop=client.loop):
+                    try:
+                        n = future.result()
+                    except distributed.KilledWorker:
+                        raise DossierError(f"{which[future].source}: a dask worker died screening it (out of memory?). "
+                                           "Fix: a smaller --chunk, or more memory per worker.") from None
+                    done += n
+                    if progress is not None:
+                        progress(n)
+            except BaseException:
+                client.cancel(futures)
+                raise
+        _replace_folder(tmp, out)
+        ok = True
+    finally:
+        if not ok:
+            _remove_folder(tmp)
+    return done
+
+
+def _kind_of_result(out: Path) -> str:
+    return "csv" if out.suffix.lower() in (".csv", ".txt") else "parquet"
+
+
+def _is_result_folder(path: Path) -> bool:
+    return path.is_dir() and all(PART_PATTERN.fullmatch(p.name) and p.is_file() for p in path.iterdir())
+
+
+def _check_replaceable(out: Path) -> None:
+    if out.exists() and not _is_result_folder(out):
+        raise DossierError(f"{out}: exists and is not a folder of screen results (part-*.parquet only). Fix: give a "
+                           "new folder name, or move it away; the dask engine replaces only an earlier result.")
+
+
+def _replace_folder(tmp: Path, out: Path) -> None:
+    """Rename ``tmp`` to ``out``; an earlier result at ``out`` is moved aside first, then removed."""
+    _check_replaceable(out)
+    os.chmod(tmp, 0o777 & ~_UMASK)  # as an ordinary new folder, not mkdtemp's owner-only mode
+    if not out.exists():
+        os.replace(tmp, out)
+        return
+    old = Path(tempfile.mkdtemp(dir=out.parent, prefix=f".{out.name}.", suffix=".old"))
+    os.replace(out, old)  # onto the empty folder mkdtemp made
+    try:
+        os.replace(tmp, out)
+    except BaseException:
+        os.replace(old, out)
+        raise
+    _remove_folder(old)
+
+
+def _remove_folder(path: Path) -> None:
+    """Remove a temporary folder, trying again while a cancelled task still finishes a file in it."""
+    import shutil
+    import time
+
+    for _ in range(50):
+        try:
+            shutil.rmtree(path)
+            return
+        except FileNotFoundError:
+            return
+        except OSError:
+            time.sleep(0.1)
+    shutil.rmtree(path, ignore_errors=True)
+
+
+@contextmanager
+def _client(distributed, scheduler: str | None, workers: int | None):
+    """A dask client of the scheduler at ``scheduler``, or of a local cluster closed on exit."""
+    import logging
+
+    if scheduler:
+        try:
+            client = distributed.Client(scheduler, timeout=CONNECT_TIMEOUT, set_as_default=False)
+        except (OSError, ValueError, TypeError) as exc:
+            raise DossierError(f"--scheduler {scheduler}: could not reach a dask scheduler there ({exc}). Fix: start "
+                               "one (dask scheduler) and give its address, like tcp://host:8786, or leave "
+                               "--scheduler out to use this machine's cores.") from None
+        with client:
+            yield client
+        return
+    from dask.system import CPU_COUNT
+
+    # one single-threaded process per core: the kernels are numpy loops that hold the GIL
+    try:
+        cluster = distributed.LocalCluster(n_workers=workers or CPU_COUNT, threads_per_worker=1, processes=True,
+                                           dashboard_address=None, silence_logs=logging.CRITICAL)
+    except (RuntimeError, OSError) as exc:
+        raise DossierError(f"could not start a local dask cluster ({exc}). Fix: fewer --workers; from a Python "
+                           "script, call screen_dask under `if __name__ == \"__main__\":`.") from None
+    with cluster, distributed.Client(cluster, set_as_default=False) as client:
+        yield client

@@ -3,7 +3,9 @@
 Stages, in order: load and validate the project, weigh every system, draw
 the figures, render the pages, write them atomically, check the links.
 Same inputs give byte-identical output: nothing here reads the clock or
-iterates in an unordered way.
+iterates in an unordered way. Builds are incremental (see :func:`build`):
+what a system contributes to the site is cached as one unit, so only
+changed systems go through the stages, over the CPU cores when they are many.
 """
 
 from __future__ import annotations
@@ -18,25 +20,24 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 from dossier import __version__
-from dossier.draw import (
-    Figure,
-    draw_detections,
-    draw_log,
-    draw_neighbours,
-    draw_spectroscopic,
-    draw_stars,
-    draw_system,
-)
-from dossier.engine import SystemResult, weigh_project
-from dossier.provenance import cited_sources, prov_json, provenance_rows
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
 from dossier.render.catalogue import search_index_js, system_row
 from dossier.render.markdown import render_markdown
-from dossier.report import system_dict, to_json
-from dossier.rules.registry import BY_ID, RULES, rule_settings
-from dossier.rules.verdict import strongest
 from dossier.schema.loader import Project, load_project
+
+# Weighing and drawing (scipy, astropy, matplotlib behind them) are imported where they are used, so that a
+# build with nothing to do starts in a fraction of a second; the names others import from here come on demand.
+_LAZY = {"Figure": "dossier.draw", "SystemResult": "dossier.engine", "BY_ID": "dossier.rules.registry",
+         "RULES": "dossier.rules.registry", "system_dict": "dossier.report"}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 MARKER = ".dossier-site"
 MANIFEST = "manifest.json"
@@ -100,6 +101,8 @@ def _para(lines: list[str]) -> str:
 
 def _rule_sections(result: SystemResult, figures: list[Figure] = ()) -> list[RuleSection]:
     """One section per rule that weighed something, with links to the figures on the page that show it."""
+    from dossier.rules.registry import RULES
+
     out = []
     for rule in RULES:
         found = [a for a in result.assessments if a.rule == rule.id]
@@ -113,6 +116,8 @@ def _rule_sections(result: SystemResult, figures: list[Figure] = ()) -> list[Rul
 
 def _assumptions(project: Project) -> list[tuple[str, str, str]]:
     """(where, setting, value) for every setting the verdicts depend on."""
+    from dossier.rules.registry import RULES, rule_settings
+
     rows = []
     for name, field in type(project.settings.verdict).model_fields.items():
         rows.append(("verdict", name, str(getattr(project.settings.verdict, name))))
@@ -133,12 +138,15 @@ class LogSection:
 
 
 def _release_pages(project: Project, sid: str, result: SystemResult, history: list, common: dict
-                   ) -> tuple[dict[str, str | bytes], dict]:
-    """The pages of a system's releases, its "what changed" pages, and what its own page says of them."""
+                   ) -> tuple[dict[str, str], dict]:
+    """The pages of a system's releases, its "what changed" pages, and what its own page says of them.
+
+    The files of each release are copied into the site as they are, by :func:`site_pages`.
+    """
     from dossier.diff import compare, grouped, state_of, summary
     from dossier.release import content_hash, evidence_files, version_label
 
-    pages: dict[str, str | bytes] = {}
+    pages: dict[str, str] = {}
     label = version_label(history, content_hash(evidence_files(project.root, sid)))
     rows = []
     for i, rel in enumerate(history):
@@ -148,8 +156,6 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
         pages[base + "index.html"] = render_page(
             "release.html", root="../../../../", sid=sid, meta=rel.meta, state=rel.state,
             previous=previous.number if previous else None, following=following, **common)
-        for name, data in rel.files().items():
-            pages[base + name] = data
         changes = compare(previous.state, rel.state) if previous else []
         if previous:
             pages[base + "changes.html"] = render_page(
@@ -172,74 +178,131 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
     return pages, {"label": label, "releases": rows, "unreleased": unreleased}
 
 
-def render_site(project: Project, results: dict[str, SystemResult], figures: dict[str, list[Figure]],
-                logs: dict[str, list[LogSection]] | None = None,
-                claim_figures: dict[str, list[Figure]] | None = None,
-                star_figures: dict[str, list[Figure]] | None = None, pdf: bool = False,
-                releases: dict[str, list] | None = None, use_cache: bool = True) -> dict[str, str | bytes]:
-    """Relative path -> page text (bytes for PDFs and the files of releases).
+def _common(settings) -> dict:
+    """What every page's template takes from the settings."""
+    return {"project": settings.project, "version": __version__, "verdict_settings": settings.verdict}
 
-    ``releases`` maps a system id to its releases (:func:`dossier.release.all_releases`);
-    each gets a frozen page, its files and a "what changed" page from the one before.
+
+def system_unit(project: Project, result: SystemResult, drawn: dict, releases: list, pdf: bool) -> dict:
+    """Everything the site shows of one system, as JSON data that the cache keeps between builds.
+
+    ``pages``: the text of its own pages (its dossier, ``weigh.json``,
+    ``provenance.json``, its releases' pages and "what changed" pages);
+    ``row``, ``search``, ``weigh`` (its entry of ``weigh.json``, as text) and
+    ``catalogue``: what the catalogue's index, search index, ``weigh.json``
+    and ECSV/VOTable take from it. The files copied as they are (the log,
+    the files of releases) are read at assembly (:func:`site_pages`).
+    ``drawn`` is :func:`draw_figures`'s.
     """
-    info = project.settings.project
-    common = {"project": info, "version": __version__, "verdict_settings": project.settings.verdict}
+    from dossier.exports import pair_rows
+    from dossier.provenance import cited_sources, prov_json, provenance_rows
+    from dossier.render.catalogue import search_text
+    from dossier.report import join_systems_json, system_dict, system_json_item
+    from dossier.rules.verdict import strongest
+
+    sid = result.system.id
+    common = _common(project.settings)
+    pages, history = _release_pages(project, sid, result, releases, common)
+    figures, claim_figures, star_figures = drawn["system"], drawn["claims"], drawn["stars"]
+    logs = [LogSection(pid, log, drawn["logs"][pid]) for pid, log in result.facts.logs.items()]
+    log_file = project.root / "systems" / sid / "log.csv"
+    pages[f"systems/{sid}/index.html"] = render_page(
+        "system.html",
+        root="../../",
+        system=result.system,
+        result=result,
+        facts=result.facts,
+        figures=figures,
+        rules=_rule_sections(result, figures + claim_figures + [f for log in logs for f in log.figures] + star_figures),
+        notes_html=render_markdown(result.system.notes),
+        note_html=lambda text: render_markdown(text or ""),
+        references=cited_sources(project, result),
+        provenance=provenance_rows(project, result),
+        logs=logs,
+        claim_figures=claim_figures,
+        star_figures=star_figures,
+        star_assessments=[a for a in result.assessments
+                          if a.rule in ("luminosity", "coevality", "space-velocity", "neighbours", "closest-approach")
+                          and a.outcome != "insufficient"],
+        grades=[a for a in result.assessments if a.grade is not None],
+        assumptions=_assumptions(project),
+        history=history,
+        strongest={p.id: strongest([a for a in result.for_subject(p.id) if a.subject_kind == "pair"],
+                                   result.verdicts[p.id].status) for p in result.system.pairs},
+        with_pdf=pdf,
+        with_log=log_file.is_file(),
+        **common,
+    )
+    weigh = system_json_item(system_dict(result))
+    pages[f"systems/{sid}/weigh.json"] = join_systems_json(project.settings.project.title, [weigh])
+    pages[f"systems/{sid}/provenance.json"] = json.dumps(prov_json(project, result), indent=2, sort_keys=True,
+                                                         ensure_ascii=False) + "\n"
+    row = {k: v for k, v in system_row(result, history).items() if k != "result"}
+    row["pairs"] = [[p.id, result.verdicts[p.id].status, result.verdicts[p.id].probability] for p in result.system.pairs]
+    summary = {"row": row, "search": search_text(result), "weigh": weigh, "catalogue": pair_rows(sid, result)}
+    # what a later build reads back from the cache, exactly: one path to the bytes, cached or not
+    return {"pages": pages, **json.loads(json.dumps(summary))}
+
+
+@dataclass(frozen=True)
+class _Listed:
+    """What the catalogue page reads of a system's result (``s.result.system.pairs``, ``s.result.verdicts``),
+    rebuilt from a unit's ``row`` so that an unchanged system needs no weighing."""
+
+    system: object
+    verdicts: dict
+
+
+def _catalogue_row(unit: dict) -> dict:
+    from types import SimpleNamespace
+
+    row = dict(unit["row"])
+    pairs = [SimpleNamespace(id=pid) for pid, _, _ in row["pairs"]]
+    verdicts = {pid: SimpleNamespace(status=status, probability=p) for pid, status, p in row.pop("pairs")}
+    row["result"] = _Listed(SimpleNamespace(pairs=pairs), verdicts)
+    row["search_text"] = unit["search"]
+    return row
+
+
+def site_pages(settings, root: Path, units: dict[str, dict], releases: dict[str, list], pdf: bool = False,
+               use_cache: bool = True) -> dict[str, str | bytes]:
+    """Relative path -> page text (bytes for PDFs, logs and the files of releases), from every system's unit.
+
+    ``units`` maps each system id, in catalogue order, to its
+    :func:`system_unit`; ``releases`` maps a system id to its releases
+    (:func:`dossier.release.all_releases`), whose files are copied as they are.
+    """
+    from dossier.exports import ecsv_text, rows_table, votable_text
+    from dossier.report import join_systems_json
+    from dossier.rules.registry import RULES
+
+    info = settings.project
+    common = _common(settings)
     pages: dict[str, str | bytes] = {}
     summaries = []
-    for sid, result in results.items():
-        release_pages, history = _release_pages(project, sid, result, (releases or {}).get(sid, []), common)
-        pages.update(release_pages)
-        summaries.append(system_row(result, history))
-        log_file = project.root / "systems" / sid / "log.csv"
+    for sid, unit in units.items():
+        pages.update(unit["pages"])
+        for rel in releases.get(sid, []):
+            for name, data in rel.files().items():
+                pages[f"systems/{sid}/releases/{rel.number}/{name}"] = data
+        log_file = root / "systems" / sid / "log.csv"
         if log_file.is_file():  # the observing log as recorded, for download
             pages[f"systems/{sid}/log.csv"] = log_file.read_bytes()
-        pages[f"systems/{sid}/index.html"] = render_page(
-            "system.html",
-            root="../../",
-            system=result.system,
-            result=result,
-            facts=result.facts,
-            figures=figures[sid],
-            rules=_rule_sections(result, figures[sid] + (claim_figures or {}).get(sid, [])
-                                 + [f for log in (logs or {}).get(sid, []) for f in log.figures]
-                                 + (star_figures or {}).get(sid, [])),
-            notes_html=render_markdown(result.system.notes),
-            note_html=lambda text: render_markdown(text or ""),
-            references=cited_sources(project, result),
-            provenance=provenance_rows(project, result),
-            logs=(logs or {}).get(sid, []),
-            claim_figures=(claim_figures or {}).get(sid, []),
-            star_figures=(star_figures or {}).get(sid, []),
-            star_assessments=[a for a in result.assessments
-                              if a.rule in ("luminosity", "coevality", "space-velocity", "neighbours", "closest-approach")
-                              and a.outcome != "insufficient"],
-            grades=[a for a in result.assessments if a.grade is not None],
-            assumptions=_assumptions(project),
-            history=history,
-            strongest={p.id: strongest([a for a in result.for_subject(p.id) if a.subject_kind == "pair"],
-                                       result.verdicts[p.id].status) for p in result.system.pairs},
-            with_pdf=pdf,
-            with_log=log_file.is_file(),
-            **common,
-        )
-        pages[f"systems/{sid}/weigh.json"] = to_json(info.title, {sid: result})
-        pages[f"systems/{sid}/provenance.json"] = json.dumps(prov_json(project, result), indent=2, sort_keys=True,
-                                                             ensure_ascii=False) + "\n"
+        summaries.append(_catalogue_row(unit))
     if pdf:
         from dossier.cache import Cache
 
-        pages.update(render_pdfs({f"systems/{sid}/index.html": pages[f"systems/{sid}/index.html"] for sid in results},
-                                 Cache(project.root if use_cache else None)))
+        pages.update(render_pdfs({f"systems/{sid}/index.html": pages[f"systems/{sid}/index.html"] for sid in units},
+                                 Cache(root if use_cache else None)))
     pages["index.html"] = render_page("index.html", root="", systems=summaries,
                                       description_html=render_markdown(info.description), **common)
     pages["search-index.js"] = search_index_js(summaries)
     pages["methods.html"] = render_page("methods.html", root="", rules=[
         (r, *doc_sections(r.doc)) for r in RULES], verdict_doc=doc_sections(_verdict_doc()), **common)
-    pages["weigh.json"] = to_json(info.title, results)
-    from dossier.exports import catalogue_ecsv, catalogue_votable
-
-    pages["catalogue.ecsv"] = catalogue_ecsv(results)
-    pages["catalogue.vot"] = catalogue_votable(results)
+    pages["weigh.json"] = join_systems_json(info.title, [unit["weigh"] for unit in units.values()])
+    table = rows_table([row for unit in units.values() for row in unit["catalogue"]])
+    pages["catalogue.ecsv"] = ecsv_text(table)
+    pages["catalogue.vot"] = votable_text(table)
     return pages
 
 
@@ -377,14 +440,140 @@ def verify_site(site: Path) -> list[str]:
     return problems
 
 
+#: In the names of the folders a build writes beside its site: ``.<site folder's name>.staging-<pid>-<random>``.
+STAGING_INFIX = ".staging-"
+
+
+def _staging_prefix(out_dir: Path) -> str:
+    return f".{out_dir.name}{STAGING_INFIX}"
+
+
+def _is_dossier_site(folder: Path) -> bool:
+    """Whether a folder holds a site Dossier wrote: its marker file, or a manifest in Dossier's format."""
+    if (folder / MARKER).is_file():
+        return True
+    try:
+        return json.loads((folder / MANIFEST).read_text(encoding="utf-8")).get("format") == "dossier-manifest"
+    except (OSError, ValueError, AttributeError):
+        return False
+
+
+def _check_replaceable(out_dir: Path) -> None:
+    """Refuse to replace anything but nothing, an empty folder or a site Dossier wrote."""
+    if not out_dir.exists():
+        return
+    if not out_dir.is_dir():
+        raise DossierError(f"{out_dir} is a file, not a folder; nothing was written. Fix: choose a new or empty folder.")
+    if any(out_dir.iterdir()) and not _is_dossier_site(out_dir):
+        raise DossierError(f"{out_dir} is not empty and was not built by dossier (it has neither {MARKER} nor a "
+                           f"Dossier {MANIFEST}); nothing was written. Fix: choose a new or empty folder.")
+
+
+def _hold(folder: Path) -> int | None:
+    """Hold an exclusive lock on a new folder for as long as this process lives or until closed.
+
+    It tells a build in progress from one that was killed: :func:`_remove_abandoned`
+    deletes only staging folders nobody holds. ``None`` where there is no ``flock``.
+    """
+    import os
+
+    try:
+        import fcntl
+
+        fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    except (ImportError, OSError):
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX)
+    except OSError:  # a file system without locks
+        os.close(fd)
+        return None
+    return fd
+
+
+def _remove_abandoned(out_dir: Path) -> None:
+    """Delete the staging folders beside ``out_dir`` that no running build holds (left by killed builds)."""
+    import os
+
+    try:
+        import fcntl
+    except ImportError:  # no way to tell a running build's folder from an abandoned one: leave them
+        return
+    prefix = _staging_prefix(out_dir)
+    for path in sorted(out_dir.parent.iterdir()):
+        if not path.name.startswith(prefix) or path.is_symlink() or not path.is_dir():
+            continue
+        try:
+            fd = os.open(path, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:  # held: a build is writing it
+            os.close(fd)
+            continue
+        try:
+            shutil.rmtree(path, ignore_errors=True)
+        finally:
+            os.close(fd)
+
+
+def _swap_in(staging: Path, out_dir: Path) -> Path | None:
+    """Put the finished ``staging`` folder at ``out_dir``; return where the previous site now is (or ``None``)."""
+    import os
+    import secrets
+
+    from dossier.durable import exchange
+
+    if not os.path.lexists(out_dir):
+        os.rename(staging, out_dir)
+        return None
+    if exchange(staging, out_dir):
+        return staging
+    # The fallback: for the instant between these two renames, out_dir is absent.
+    aside = out_dir.with_name(f"{_staging_prefix(out_dir)}{os.getpid()}-{secrets.token_hex(4)}")
+    os.rename(out_dir, aside)
+    try:
+        os.rename(staging, out_dir)
+    except BaseException:
+        os.rename(aside, out_dir)
+        raise
+    return aside
+
+
 def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, str] | None = None) -> None:
-    """Write the site into a fresh folder, then swap it in: never a half-written site."""
-    out_dir = out_dir.resolve()
-    if out_dir.exists() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
-        raise DossierError(f"{out_dir} is not empty and was not built by dossier; nothing was written. "
-                           "Fix: choose a new or empty folder.")
+    """Write the site into a new folder beside ``out_dir``, then swap it in at once: never a half-written site.
+
+    The pages, the stylesheets, the marker and ``manifest.json`` go into
+    ``.<name>.staging-<pid>-<random>/`` beside ``out_dir`` and are flushed to
+    disk; then the two folders trade places in one atomic step (Linux's
+    ``renameat2`` with ``RENAME_EXCHANGE``), so ``out_dir`` holds a whole
+    site, the old one or the new one, whenever the process is killed or the
+    power fails. Where that call is unavailable (another system, a file
+    system without it) the old site is renamed aside and the new one renamed
+    in, and for that instant ``out_dir`` is absent. The previous site is
+    then deleted, and so are staging folders that killed builds left
+    behind (each build locks its own, so a running build's is never taken
+    for one). ``out_dir`` stays a real folder: copying, syncing or
+    committing it works as before.
+
+    Nothing is written when ``out_dir`` is a file, or a folder that is not
+    empty and holds neither Dossier's marker nor a Dossier manifest.
+    """
+    import os
+    import secrets
+
+    from dossier.durable import fsync_path, fsync_tree
+
+    out_dir = Path(out_dir).resolve()
+    if out_dir.parent == out_dir:
+        raise DossierError(f"{out_dir} is the root of the file system. Fix: choose a new or empty folder.")
+    _check_replaceable(out_dir)
     out_dir.parent.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.", dir=out_dir.parent))
+    staging = out_dir.with_name(f"{_staging_prefix(out_dir)}{os.getpid()}-{secrets.token_hex(4)}")
+    staging.mkdir()  # with the umask's permissions: a site is for everyone to read
+    lock = _hold(staging)
+    previous = None
     try:
         for rel, text in sorted(pages.items()):
             path = staging / rel
@@ -399,18 +588,17 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
         broken = check_links(staging, pages)
         if broken:
             raise DossierError("broken links in the built site: " + "; ".join(broken))
-        if out_dir.exists():
-            old = out_dir.with_name(f".{out_dir.name}.old")
-            if old.exists():
-                shutil.rmtree(old)
-            out_dir.rename(old)
-            staging.rename(out_dir)
-            shutil.rmtree(old)
-        else:
-            staging.rename(out_dir)
+        fsync_tree(staging)  # so that a power cut after the swap finds whole files
+        _check_replaceable(out_dir)  # again, just before: the folder may have changed while the pages were written
+        previous = _swap_in(staging, out_dir)
+        fsync_path(out_dir.parent, folder=True)
     finally:
-        if staging.exists():
-            shutil.rmtree(staging)
+        if lock is not None:
+            os.close(lock)
+        for leftover in (staging, previous):  # a half-written build, or the previous site
+            if leftover is not None and os.path.lexists(leftover):
+                shutil.rmtree(leftover, ignore_errors=True)
+    _remove_abandoned(out_dir)
 
 
 @functools.lru_cache(maxsize=1)
@@ -435,6 +623,8 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
     """
     from dataclasses import asdict
 
+    from dossier.draw import (Figure, draw_detections, draw_log, draw_neighbours, draw_spectroscopic, draw_stars,
+                              draw_system)
     from dossier.release import content_hash, evidence_files
 
     def compute() -> dict:
@@ -457,38 +647,298 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
             "stars": as_figures(data["stars"]), "logs": {pid: as_figures(v) for pid, v in data["logs"].items()}}
 
 
-def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_cache: bool = True) -> Path:
+#: A site built from cached units must equal one built afresh; bump when :func:`system_unit` changes shape.
+UNIT_FORMAT = 1
+#: Libraries whose versions can change a page, a figure or a number: part of every cache key of a build.
+OUTPUT_PACKAGES = ("numpy", "scipy", "astropy", "pyerfa", "matplotlib", "jinja2", "markdown-it-py", "pydantic")
+#: Below this many systems to weigh, draw and render, a build stays in one process (a worker takes seconds to start).
+PARALLEL_MIN = 8
+
+
+@functools.lru_cache(maxsize=1)
+def _output_code_hash() -> str:
+    """SHA-256 of everything besides the inputs that shapes a built page: Dossier's source, its templates
+    and stylesheets, and the versions of the libraries that compute, draw and write."""
+    import hashlib
+    from importlib.metadata import PackageNotFoundError, version
+
+    digest = hashlib.sha256(_code_hash().encode())
+    base = templates_dir()
+    for path in sorted(p for p in base.rglob("*") if p.is_file()):
+        digest.update(path.relative_to(base).as_posix().encode() + b"\0" + hashlib.sha256(path.read_bytes()).digest())
+    for name in OUTPUT_PACKAGES:
+        try:
+            found = version(name)
+        except PackageNotFoundError:
+            found = "-"
+        digest.update(f"{name} {found}\n".encode())
+    return digest.hexdigest()
+
+
+def _digest(path: Path) -> str | None:
+    return _sha256(path) if path.is_file() else None
+
+
+def _unit_keys(root: Path, folders: list[str], releases: dict[str, list], pdf: bool) -> dict[str, dict]:
+    """The cache key of each system's unit: everything its pages depend on.
+
+    Its evidence and log, the settings and references (every page shows
+    them), the seals of its releases (each seal covers the release's files),
+    whether pages link a PDF, and :func:`_output_code_hash`. No other system
+    enters a system's pages: they link only to their own files and the
+    catalogue's.
+    """
+    from dossier.schema.loader import REFERENCES_FILE, SETTINGS_FILE
+
+    shared = [_digest(root / SETTINGS_FILE), _digest(root / REFERENCES_FILE)]
+    code = _output_code_hash()
+    keys = {}
+    for sid in folders:
+        folder = root / "systems" / sid
+        seals = []
+        for rel in releases.get(sid, []):
+            try:
+                seals.append([rel.number, rel.meta.get("seal")])
+            except (OSError, ValueError, AttributeError):
+                seals.append([rel.number, None])
+        keys[sid] = {"format": UNIT_FORMAT, "code": code, "pdf": pdf, "shared": shared,
+                     "evidence": _digest(folder / "evidence.yaml"), "log": _digest(folder / "log.csv"),
+                     "releases": seals}
+    return keys
+
+
+def _compute_unit(project: Project, sid: str, releases: list, pdf: bool, cache, key: dict | None) -> dict:
+    """Weigh, draw and render one system (:func:`system_unit`); keep it in the cache under ``key``.
+
+    It is kept only if the system's files still have the hashes of ``key``:
+    a file edited while the build ran must not be cached under its old content.
+    """
+    from dossier.engine import weigh_system
+
+    result = weigh_system(project.systems[sid], project.settings, project.logs.get(sid, ()), cache)
+    unit = system_unit(project, result, draw_figures(project, result, cache), releases, pdf)
+    if cache is not None and key is not None:
+        folder = project.root / "systems" / sid
+        if (_digest(folder / "evidence.yaml"), _digest(folder / "log.csv")) == (key["evidence"], key["log"]):
+            _store_unit(cache, sid, key, unit)
+    return unit
+
+
+def _store_unit(cache, sid: str, key: dict, unit: dict) -> None:
+    """The pages as UTF-8 one after the other behind a line of JSON that names them and their sizes (reading
+    hundreds of megabytes of pages back is then a copy, not a JSON parse), the rest as JSON."""
+    names = sorted(unit["pages"])
+    data = [unit["pages"][name].encode("utf-8") for name in names]
+    head = json.dumps({"names": names, "sizes": [len(d) for d in data]}).encode() + b"\n"
+    cache.put_bytes(f"site-pages-{sid}", key, head + b"".join(data))
+    cache.put_json(f"site-unit-{sid}", key, {k: v for k, v in unit.items() if k != "pages"})
+
+
+def _cached_unit(cache, sid: str, key: dict) -> dict | None:
+    unit = cache.get_json(f"site-unit-{sid}", key)
+    packed = cache.get_bytes(f"site-pages-{sid}", key) if unit is not None else None
+    if packed is None:
+        return None
+    try:
+        end = packed.index(b"\n")
+        head = json.loads(packed[:end])
+        pages, at = {}, end + 1
+        for name, size in zip(head["names"], head["sizes"]):
+            pages[name] = packed[at:at + size].decode("utf-8")
+            at += size
+    except (ValueError, KeyError, TypeError):
+        return None
+    if at != len(packed):
+        return None
+    return {**unit, "pages": pages}
+
+
+_WORKER: dict = {}
+
+
+def _start_unit_worker(base: Project, pdf: bool, use_cache: bool) -> None:
+    from dossier.cache import Cache
+
+    _WORKER.update(base=base, pdf=pdf, cache=Cache(base.root) if use_cache else None)
+
+
+def _unit_job(sid: str, system, logs: tuple, releases: list, key: dict) -> dict:
+    import dataclasses
+
+    base = _WORKER["base"]
+    project = dataclasses.replace(base, systems={sid: system}, logs={sid: logs})
+    return _compute_unit(project, sid, releases, _WORKER["pdf"], _WORKER["cache"], key)
+
+
+def _compute_units(project: Project, todo: list[str], releases: dict[str, list], keys: dict[str, dict], pdf: bool,
+                   cache, workers: int | None, progress) -> dict[str, dict]:
+    """The units of the systems in ``todo``, in that order: in this process, or over the CPU cores.
+
+    A process pool (spawned, like :func:`render_pdfs`) pays off only for
+    many systems, so ``workers=None`` uses one when there are at least
+    :data:`PARALLEL_MIN`; each worker weighs, draws and renders whole
+    systems, and the result is the same bytes whichever process made it.
+    ``progress(done, total)`` is called after each system.
+    """
+    import os
+
+    total = len(todo)
+    if workers is None:
+        workers = (os.cpu_count() or 1) if total >= PARALLEL_MIN else 1
+    workers = min(workers, total)
+    done: dict[str, dict] = {}
+    if workers <= 1:
+        for sid in todo:
+            done[sid] = _compute_unit(project, sid, releases.get(sid, []), pdf, cache, keys.get(sid))
+            if progress is not None:
+                progress(len(done), total)
+        return done
+    import dataclasses
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+    from multiprocessing import get_context
+
+    base = dataclasses.replace(project, systems={}, logs={})
+    with ProcessPoolExecutor(max_workers=workers, mp_context=get_context("spawn"), initializer=_start_unit_worker,
+                             initargs=(base, pdf, cache is not None)) as pool:
+        futures = {pool.submit(_unit_job, sid, project.systems[sid], project.logs.get(sid, ()),
+                               releases.get(sid, []), keys.get(sid)): sid for sid in todo}
+        for future in as_completed(futures):
+            done[futures[future]] = future.result()
+            if progress is not None:
+                progress(len(done), total)
+    return {sid: done[sid] for sid in todo}
+
+
+def _input_hashes(root: Path) -> dict[str, str]:
+    """:func:`input_hashes` of a project folder not loaded."""
+    return {p.relative_to(root).as_posix(): _sha256(p) for p in input_files(root) if p.is_file()}
+
+
+def _files_of(folder: Path) -> dict[str, list[int]]:
+    """Size and modification time (ns) of every file under a folder, by relative path."""
+    import os
+
+    out = {}
+    for parent, dirs, files in os.walk(folder):
+        dirs.sort()
+        for name in sorted(files):
+            path = os.path.join(parent, name)
+            st = os.stat(path)
+            out[os.path.relpath(path, folder).replace(os.sep, "/")] = [st.st_size, st.st_mtime_ns]
+    return out
+
+
+def _site_state(out: Path, inputs: dict[str, str], pdf: bool) -> tuple[dict, str]:
+    """(cache key of the record of the last site built into ``out``, what this build would make of it)."""
+    import hashlib
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        engine = version("weasyprint") if pdf else None  # the PDFs' cache key names it too
+    except PackageNotFoundError:
+        engine = None
+    text = json.dumps({"inputs": inputs, "pdf": pdf, "pdf_engine": engine, "code": _output_code_hash(),
+                       "version": __version__}, sort_keys=True)
+    return {"out": str(out.resolve())}, hashlib.sha256(text.encode()).hexdigest()
+
+
+def _site_is_current(cache, out: Path, inputs: dict[str, str], pdf: bool) -> bool:
+    """Whether ``out`` holds, untouched, the site this build would write.
+
+    After each build the cache records the hash of its inputs, options and
+    code, and the size and modification time of every file it wrote; when
+    all of them are the same, so is the site, and nothing needs doing.
+    """
+    where, made_of = _site_state(out, inputs, pdf)
+    record = cache.get_json("site-state", where)
+    if not record or record.get("made_of") != made_of or not (out / MANIFEST).is_file():
+        return False
+    return _files_of(out) == record.get("files")
+
+
+def _record_site(cache, out: Path, inputs: dict[str, str], pdf: bool) -> None:
+    where, made_of = _site_state(out, inputs, pdf)
+    cache.put_json("site-state", where, {"made_of": made_of, "files": _files_of(out)})
+
+
+def _load_systems(root: Path, folders: list[str], todo: list[str], folder_problems: list) -> Project:
+    """The project with the systems of ``todo`` loaded and validated (all of them when many are needed).
+
+    The others were valid when their units were cached, under the same
+    settings and references. Any problem makes the whole project load
+    again, so that every problem is reported at once, as ``dossier check`` does.
+    """
+    from dossier.errors import ProblemsFound
+    from dossier.schema.loader import load_settings
+
+    if folder_problems or not folders or 3 * len(todo) > len(folders):
+        return load_project(root)
+    if not todo:
+        settings, problems = load_settings(root)
+        if problems or settings is None:
+            return load_project(root)  # raises with every problem
+        return Project(root=root, settings=settings, references={})
+    try:
+        loaded = [load_project(root, only=sid) for sid in todo]
+    except ProblemsFound:
+        load_project(root)  # every problem of the project at once
+        raise
+    project = loaded[0]
+    for one in loaded[1:]:
+        project.systems.update(one.systems)
+        project.logs.update(one.logs)
+    return project
+
+
+def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_cache: bool = True,
+          workers: int | None = None, progress=None) -> Path:
     """Build the site of a project into ``out_dir``; return its index page.
 
     Every system gets its page, a PDF of it (unless ``pdf`` is false, for
     quick previews), its frozen releases and their "what changed" pages.
-    ``use_cache=False`` computes everything afresh (fits and PDFs), ignoring
-    ``<project>/.dossier-cache/``.
+    ``use_cache=False`` computes everything afresh (fits, figures, pages and
+    PDFs), ignoring ``<project>/.dossier-cache/``.
     A release that fails :func:`dossier.release.verify_releases` stops the
     build before anything is written.
-    """
-    from dossier.release import all_releases, verify_releases
 
-    project = load_project(Path(project_dir))
-    altered = verify_releases(project.root)
+    Incremental: each system's pages and what the catalogue takes from it
+    are cached as one unit (:func:`system_unit`) under the hashes of its
+    files, the settings, the references and the code (:func:`_unit_keys`),
+    so an unchanged system is neither loaded, weighed, drawn nor rendered
+    again; when nothing at all changed and ``out_dir`` still holds the last
+    build, nothing is written. Systems to compute are spread over
+    ``workers`` processes (default: the CPU cores, when there are many
+    systems); ``progress(done, total)`` is called as each is finished. The
+    site is byte-identical whichever way it was made.
+    """
+    from dossier.cache import Cache
+    from dossier.release import all_releases, verify_releases
+    from dossier.schema.loader import system_folders
+
+    root, out = Path(project_dir), Path(out_dir)
+    if not root.is_dir():
+        load_project(root)  # raises: not a project folder
+    cache = Cache(root) if use_cache else None
+    inputs = _input_hashes(root)
+    if cache is not None and _site_is_current(cache, out, inputs, pdf):
+        return out.resolve() / "index.html"
+    folders, folder_problems = system_folders(root)
+    releases = {sid: found for sid, found in all_releases(root).items() if sid in folders}
+    keys = _unit_keys(root, folders, releases, pdf)
+    units = {sid: _cached_unit(cache, sid, keys[sid]) for sid in folders} if cache is not None else {}
+    todo = [sid for sid in folders if units.get(sid) is None]
+    project = _load_systems(root, folders, todo, folder_problems)
+    altered = verify_releases(root)
     if altered:
         raise DossierError("the project's releases were altered, and releases are immutable: " + "; ".join(altered)
                            + ". Nothing was written. Fix: restore them (e.g. git checkout -- releases/).")
-    releases = {sid: found for sid, found in all_releases(project.root).items() if sid in project.systems}
-    results = weigh_project(project, use_cache=use_cache)
-    from dossier.cache import Cache
-
-    cache = Cache(project.root) if use_cache else None
-    drawn = {sid: draw_figures(project, result, cache) for sid, result in results.items()}
-    figures = {sid: d["system"] for sid, d in drawn.items()}
-    claim_figures = {sid: d["claims"] for sid, d in drawn.items()}
-    logs = {sid: [LogSection(pid, log, drawn[sid]["logs"][pid]) for pid, log in result.facts.logs.items()]
-            for sid, result in results.items()}
-    star_figures = {sid: d["stars"] for sid, d in drawn.items()}
-    pages = render_site(project, results, figures, logs, claim_figures, star_figures, pdf=pdf, releases=releases,
-                        use_cache=use_cache)
-    write_site(Path(out_dir), pages, input_hashes(project))
-    return Path(out_dir).resolve() / "index.html"
+    units.update(_compute_units(project, todo, releases, keys, pdf, cache, workers, progress))
+    pages = site_pages(project.settings, root, {sid: units[sid] for sid in folders}, releases, pdf=pdf,
+                       use_cache=use_cache)
+    write_site(out, pages, inputs)
+    if cache is not None:
+        _record_site(cache, out, inputs, pdf)
+    return out.resolve() / "index.html"
 
 
-__all__ = ["build", "render_site", "write_site", "check_links", "doc_sections", "BY_ID", "system_dict"]
+__all__ = ["build", "site_pages", "system_unit", "write_site", "check_links", "doc_sections", "BY_ID", "system_dict"]
