@@ -574,7 +574,7 @@ def test_an_altered_release_is_found_by_dossier_verify(tmp_path):
     runner = CliRunner()
     assert runner.invoke(cli, ["verify", str(project)]).exit_code == 0
     path = project / "releases/heron-1/1/weigh.json"
-    assert not path.stat().st_mode & (stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH)  # released files are read-only
+    # released files are written read-only (tests/test_release.py), but git does not keep that in a clone
     path.chmod(stat.S_IRUSR | stat.S_IWUSR)  # someone insists
     data = path.read_bytes()
     path.write_bytes(data.replace(b'"bound"', b'"optical"', 1))
