@@ -193,7 +193,7 @@ def _system(rng: random.Random, k: int) -> tuple[str, str, str]:
         lines.append("  Aa:")
         lines.append("    radial_velocity_series:")
         day0 = dt.date(2010, 1, 1)
-        for day in sorted(rng.sample(range(0, 4400), 14)):
+        for day in sorted(rng.sample(range(4400), 14)):
             v = rv0 + k_amp * math.sin(2 * math.pi * (day / period + t0)) + rng.gauss(0, 0.15)
             lines.append(f"      - {{epoch: {(day0 + dt.timedelta(days=day)).isoformat()}, velocity: {_m(v, 0.15, 2)}, "
                          "instrument: echelle-1, ref: synth-rv-1}")
@@ -218,13 +218,13 @@ def _system(rng: random.Random, k: int) -> tuple[str, str, str]:
         lines += ["", "claims:", *claims]
         if rng.random() < 0.6:
             lines += ["non_detections:",
-                      f"  - {{around: A, method: adaptive-optics, epoch: {rng.uniform(2015, 2024):.2f}, "
-                      f"rho_range: [0.05, 2.0], contrast: {rng.uniform(4, 7):.1f}, band: H, ref: synth-ao-1}}"]
+                      (f"  - {{around: A, method: adaptive-optics, epoch: {rng.uniform(2015, 2024):.2f}, "
+                       f"rho_range: [0.05, 2.0], contrast: {rng.uniform(4, 7):.1f}, band: H, ref: synth-ao-1}}")]
     if rng.random() < 0.25:
         lines += ["", "reviews:",
-                  f"  - {{by: reviewer-{rng.randint(1, 5)}, on: 2026-{rng.randint(1, 12):02d}-{rng.randint(1, 28):02d}, "
-                  f"decision: {rng.choice(('approve', 'comment', 'request-changes'))}, comment: \"Checked against the "
-                  f"sources ({k}).\"}}"]
+                  (f"  - {{by: reviewer-{rng.randint(1, 5)}, on: 2026-{rng.randint(1, 12):02d}-"
+                   f"{rng.randint(1, 28):02d}, decision: {rng.choice(('approve', 'comment', 'request-changes'))}, "
+                   f"comment: \"Checked against the sources ({k}).\"}}")]
     kind_text = ", ".join(f"A{s.cid} {kd}" for s, kd in zip(stars[1:], kinds))
     lines += ["", "notes: |", f"  Invented for timing the build: {kind_text} by construction.",
               f"  The primary is a **{stars[0].sptype}** star at about {1000 / plx:.0f} pc.", ""]
@@ -234,9 +234,9 @@ def _system(rng: random.Random, k: int) -> tuple[str, str, str]:
 
 def _log(rng: random.Random, stars: list[_Star], kinds: list[str]) -> str:
     """Measures of position angle and separation of one or two pairs of the primary, over decades."""
-    rows = ["pair,epoch,theta,theta_error,rho,rho_error,delta_mag,band,method,equinox,aperture_cm,observer,site,"
-            "nights,quality,notes,ref"]
-    for star, kind in list(zip(stars[1:], kinds))[: rng.choice((1, 1, 2))]:
+    rows = [("pair,epoch,theta,theta_error,rho,rho_error,delta_mag,band,method,equinox,aperture_cm,observer,site,"
+             "nights,quality,notes,ref")]
+    for star, _kind in list(zip(stars[1:], kinds))[: rng.choice((1, 1, 2))]:
         # relative motion: almost none for a physical pair, the primary's motion for an optical one (″/yr)
         dx = (star.pmra - stars[0].pmra) / 1000.0
         dy = (star.pmdec - stars[0].pmdec) / 1000.0
@@ -249,7 +249,7 @@ def _log(rng: random.Random, stars: list[_Star], kinds: list[str]) -> str:
             rho = math.hypot(east, north)
             theta = math.degrees(math.atan2(east, north)) % 360
             if t < 1975:
-                method, epoch, err = "filar-micrometer", f"B{t:.3f}", (0.3, 0.15)
+                method, epoch = "filar-micrometer", f"B{t:.3f}"
                 row = [f"{(theta + rng.gauss(0, 0.3)) % 360:.2f}", "", f"{rho + rng.gauss(0, 0.15):.3f}", ""]
                 extra = ["V", method, "", "46", f"observer-{rng.randint(1, 4)}", "old-refractor-site",
                          str(rng.randint(1, 3)), "", "", ""]

@@ -18,6 +18,7 @@ import tempfile
 from dataclasses import dataclass
 from html.parser import HTMLParser
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from dossier import __version__
 from dossier.errors import DossierError
@@ -25,6 +26,12 @@ from dossier.render.html import render_page, templates_dir
 from dossier.render.catalogue import search_index_js, system_row
 from dossier.render.markdown import render_markdown
 from dossier.schema.loader import Project, load_project
+
+if TYPE_CHECKING:
+    from dossier.draw import Figure
+    from dossier.engine import SystemResult
+    from dossier.report import system_dict
+    from dossier.rules.registry import BY_ID
 
 # Weighing and drawing (scipy, astropy, matplotlib behind them) are imported where they are used, so that a
 # build with nothing to do starts in a fraction of a second; the names others import from here come on demand.
@@ -623,8 +630,15 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
     """
     from dataclasses import asdict
 
-    from dossier.draw import (Figure, draw_detections, draw_log, draw_neighbours, draw_spectroscopic, draw_stars,
-                              draw_system)
+    from dossier.draw import (
+        Figure,
+        draw_detections,
+        draw_log,
+        draw_neighbours,
+        draw_spectroscopic,
+        draw_stars,
+        draw_system,
+    )
     from dossier.release import content_hash, evidence_files
 
     def compute() -> dict:

@@ -22,10 +22,10 @@ from dossier.cli import cli
 from dossier.errors import ProblemsFound
 from dossier.schema.loader import load_project
 from dossier.site import build
-from tests.conftest import DEMO, REPO
+from tests.conftest import REPO
 
 sys.path.insert(0, str(REPO / "benchmarks"))
-from synthetic import make_project  # noqa: E402
+from synthetic import make_project
 
 #: The files of the whole catalogue, rewritten whenever any system changes.
 CATALOGUE_FILES = {"index.html", "search-index.js", "weigh.json", "catalogue.ecsv", "catalogue.vot", "manifest.json"}
