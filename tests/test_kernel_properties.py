@@ -276,7 +276,9 @@ def test_combined_parallax_on_arrays_equals_each_star_alone_and_ignores_the_orde
         for name in ("mean", "error", "chi2", "p_value", "birge_ratio", "error_inflated"):
             np.testing.assert_allclose(getattr(shuffled, name), getattr(alone, name), rtol=1e-9, atol=1e-12,
                                        equal_nan=True, err_msg=name)
-        same(shuffled.residual_sigma, alone.residual_sigma[order], rtol=1e-9, what="residual_sigma")
+        # the leave-one-out mean is (Σ w x − w_i x_i) / (Σ w − w_i): summed in another order, its rounding moves by
+        # ~1e-16 of the largest term, which a dominant source (a tiny error) makes ~1e-9 of a residual in σ
+        same(shuffled.residual_sigma, alone.residual_sigma[order], rtol=1e-9, atol=1e-8, what="residual_sigma")
 
 
 # --- the rules' kernels ----------------------------------------------------------------------------
