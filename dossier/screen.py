@@ -580,11 +580,17 @@ def _check_replaceable(out: Path) -> None:
 
 
 def _replace_folder(tmp: Path, out: Path) -> None:
-    """Rename ``tmp`` to ``out``; an earlier result at ``out`` is moved aside first, then removed."""
+    """Rename ``tmp`` to ``out``; an earlier result at ``out`` is swapped out atomically (else moved aside
+    first), then removed."""
     _check_replaceable(out)
     os.chmod(tmp, 0o777 & ~_UMASK)  # as an ordinary new folder, not mkdtemp's owner-only mode
     if not out.exists():
         os.replace(tmp, out)
+        return
+    from dossier.durable import exchange
+
+    if exchange(tmp, out):  # one atomic step where the system has it, as the site's swap does
+        _remove_folder(tmp)  # now the earlier result
         return
     old = Path(tempfile.mkdtemp(dir=out.parent, prefix=f".{out.name}.", suffix=".old"))
     os.replace(out, old)  # onto the empty folder mkdtemp made

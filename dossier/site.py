@@ -14,7 +14,6 @@ import functools
 import json
 import re
 import shutil
-import tempfile
 from dataclasses import dataclass
 from html.parser import HTMLParser
 from pathlib import Path
