@@ -55,7 +55,7 @@ def weigh_system(system: System, settings: Settings, log: tuple = (), cache=None
         assessments += [_run(rule, facts, s, settings) for s in subjects]
     verdicts = {
         p.id: verdict_mod.combine(p.id, [a for a in assessments if a.subject == p.id and a.subject_kind == "pair"],
-                                  settings.verdict)
+                                  settings.verdict, settings.pair_model.model_limit)
         for p in system.pairs
     }
     return SystemResult(system, facts, tuple(assessments), verdicts)

@@ -5,17 +5,30 @@ from __future__ import annotations
 import math
 
 
-def fmt_probability(p: float | None) -> str:
-    """A probability for people: never '1' or '0' for a statistical statement."""
-    if p is None:
+#: Probabilities nearer 0 or 1 than this are limits of the model, not measurements (PairModelSettings.model_limit).
+MODEL_LIMIT = 1e-6
+
+
+def fmt_probability(p: float | None, limit: float | None = None) -> str:
+    """A probability for people, at the precision it deserves, never '1' or '0' for a statistical statement.
+
+    Two significant figures of the smaller of p and 1 − p (the model's priors are not known better than
+    that), so 0.52, 0.987, 0.99987 and 0.0031. With ``limit`` (the model's limit, e.g. 1e-6), values
+    beyond it read "> 0.999999 (limit of the model)" or "< 0.000001 (limit of the model)".
+    """
+    if p is None or (isinstance(p, float) and math.isnan(p)):
         return "—"
-    if p >= 0.9999:
-        return "> 0.9999"
-    if p <= 0.0001:
-        return "< 0.0001"
-    if 0.01 <= p <= 0.99:
-        return f"{p:.3f}"
-    return f"{p:.4f}"
+    if limit is not None:
+        digits = max(1, round(-math.log10(limit)))
+        if p >= 1 - limit:
+            return f"> {1 - limit:.{digits}f} (limit of the model)"
+        if p <= limit:
+            return f"< {limit:.{digits}f} (limit of the model)"
+    tail = float(f"{min(p, 1 - p):.1e}")  # two significant figures
+    if tail <= 0:
+        return "> 0.9999" if p >= 0.5 else "< 0.0001"
+    decimals = max(2, 1 - int(math.floor(math.log10(tail))))
+    return f"{p:.{decimals}f}"
 
 
 def fmt_number(value: float | None, digits: int = 4) -> str:
@@ -31,7 +44,7 @@ def fmt_number(value: float | None, digits: int = 4) -> str:
     return f"{value:.{digits - 1}e}"
 
 
-def p_statement(label: str, p: float | None) -> str:
-    """'P(physical) = 0.973' or 'P(physical) > 0.9999'."""
-    text = fmt_probability(p)
+def p_statement(label: str, p: float | None, limit: float | None = None) -> str:
+    """'P(physical) = 0.973' or 'P(physical) > 0.999999 (limit of the model)'."""
+    text = fmt_probability(p, limit)
     return f"{label} {text}" if text[0] in "<>" else f"{label} = {text}"

@@ -46,6 +46,10 @@ FIELDS: tuple[tuple[str, str, bool], ...] = (
     ("rv1", "km/s", False), ("rv_error1", "km/s", False), ("rv2", "km/s", False), ("rv_error2", "km/s", False),
     ("mag1", "mag", False), ("mag2", "mag", False),
     ("mass1", "Msun", False), ("mass2", "Msun", False),
+    ("mass_error1", "Msun", False), ("mass_error2", "Msun", False),
+    ("pmra_pmdec_corr1", "", False), ("pmra_pmdec_corr2", "", False),
+    ("field_density", "deg-2", False),
+    ("inner1", "", False), ("inner2", "", False),
 )
 NUMERIC = tuple(name for name, _, _ in FIELDS if name != "pair_id")
 
@@ -59,6 +63,25 @@ OUTPUT_COLUMNS: dict[str, str] = {
     "total_mass_msun": "mass1 + mass2, estimated where missing (solar masses)",
     "mass_estimated": "true where a mass was estimated from the magnitude and parallax",
     "period_yr": "Kepler period of a circular orbit with a = projected separation (yr)",
+}
+#: The pair model's and the verdict's columns, after each diagnostic rule's ``_outcome``, ``_statistic``, ``_strength``.
+VERDICT_COLUMNS: dict[str, str] = {
+    "field_density_used": "field stars per square degree at least as bright as the fainter star (input, table or "
+                          "setting)",
+    "prior_log10": "log10 odds physical : chance from the separation prior (companions against field stars)",
+    "parallax_log10": "log10 odds physical : chance from the parallaxes",
+    "motion_log10": "log10 odds physical : chance from the proper motions and RVs, given the parallaxes",
+    "binding_prior_log10": "log10 odds bound : co-moving from the separation prior",
+    "binding_motion_log10": "log10 odds bound : co-moving from the velocity difference",
+    "delta_v_tangential_kms": "velocity difference on the sky, perspective removed (km/s)",
+    "circular_speed_kms": "circular speed at the projected separation (km/s)",
+    "p_bound": "P(bound)", "p_comoving": "P(co-moving)", "p_chance": "P(chance alignment)",
+    "p_physical": "P(bound) + P(co-moving)", "p_bound_given_physical": "P(bound) / P(physical)",
+    "status": "bound, co-moving, optical or undetermined",
+    "probability": "the probability of the status (probability_of says which)",
+    "probability_of": "P(bound), P(co-moving), P(chance alignment), or P(physical) for undetermined",
+    "limited_by_model": "true where the probability is nearer 0 or 1 than the model's limit (shown as a limit)",
+    "moved_most": "the term that moved the verdict most towards its status",
 }
 
 DEFAULT_CHUNK = 250_000
@@ -273,7 +296,8 @@ def screen_table(t: Table, settings) -> dict[str, np.ndarray]:
     """Every output column for one chunk of pairs."""
     from dossier.astro import angles, binary
 
-    c = t.columns
+    # every field, NaN where the table has no column (as the reader gives them)
+    c = {name: t.columns[name] if name in t.columns else np.full(len(t), np.nan) for name in NUMERIC}
     rho, pa = angles.separation_pa(c["ra1"], c["dec1"], c["ra2"], c["dec2"])
     m1, m2 = c["mass1"], c["mass2"]
     est1, est2 = np.isnan(m1), np.isnan(m2)
@@ -292,7 +316,12 @@ def screen_table(t: Table, settings) -> dict[str, np.ndarray]:
         "mass_estimated": (est1 | est2) & np.isfinite(total),
         "period_yr": binary.kepler_period_yr(s_au, total),
     }
-    out.update(run_rules(c, rho, total, settings))
+    from dossier.astro.pairmodel import ESTIMATED_MASS_LN_ERROR
+
+    filled = dict(c, mass1=m1, mass2=m2,
+                  mass_error1=np.where(est1, ESTIMATED_MASS_LN_ERROR * m1, c["mass_error1"]),
+                  mass_error2=np.where(est2, ESTIMATED_MASS_LN_ERROR * m2, c["mass_error2"]))
+    out.update(run_rules(filled, rho, total, settings))
     return out
 
 
@@ -321,7 +350,6 @@ def run_rules(c: dict[str, np.ndarray], rho: np.ndarray, total: np.ndarray, sett
     from dossier.rules import distance as distance_rule
     from dossier.rules.base import OUTCOME_NAMES
     from dossier.rules.registry import RULES, rule_settings
-    from dossier.rules.verdict import STATUSES, combine_arrays
 
     def config(rule):
         return rule_settings(settings.rules, rule.RULE)
@@ -346,24 +374,46 @@ def run_rules(c: dict[str, np.ndarray], rho: np.ndarray, total: np.ndarray, sett
                                                         dist, total, config(radial_velocity))
     order = [r for r in RULES if r.id in results]  # registry order, as weigh sums them
     out: dict[str, np.ndarray] = {}
-    association, binding = [], []
     for rule in order:
         res = results[rule.id]
         key = rule.id.replace("-", "_")
         out[f"{key}_outcome"] = np.array(OUTCOME_NAMES, dtype=object)[res["outcome"].astype(int) + 2]
         out[f"{key}_statistic"] = res["statistic"]
         out[f"{key}_strength"] = res["strength"]
-        if rule.question in ("association", "orbit"):
-            association.append(res["strength"])
-        if rule.question in ("binding", "orbit"):
-            binding.append(res["strength"])
+    out.update(verdict_columns(c, rho, results["chance-alignment"]["density"], settings, length))
+    return out
+
+
+def verdict_columns(c: dict[str, np.ndarray], rho: np.ndarray, table_density: np.ndarray, settings,
+                    length_scale_kpc: float) -> dict[str, np.ndarray]:
+    """The pair model (:func:`dossier.astro.pairmodel.evaluate`) and the verdict of each pair: the same
+    function ``dossier weigh`` uses, with no independent lines (a screen has no log, orbits or ages)."""
+    from dossier.astro import pairmodel
+    from dossier.rules.verdict import MODEL_TERMS, PROBABILITY_OF, STATUSES, Model, combine_arrays, strongest_arrays
+
+    density = np.where(np.isfinite(c["field_density"]), c["field_density"], table_density)
+    cols = dict(c, field_density=density)
+    r = pairmodel.evaluate(cols, settings.pair_model, length_scale_kpc)
+    model = Model(r["log_bound"], r["log_comoving"], r["log_chance"], {k: r[k] for k, *_ in MODEL_TERMS})
     n = len(rho)
-    verdict = combine_arrays(np.column_stack(association) if association else np.empty((n, 0)),
-                             np.column_stack(binding) if binding else np.empty((n, 0)), settings.verdict)
-    out["p_physical"] = verdict["p_physical"]
-    out["p_bound"] = verdict["p_bound"]
-    out["status"] = np.array(STATUSES, dtype=object)[verdict["status"]]
-    out["probability"] = verdict["probability"]
+    empty = np.empty((n, 0))
+    v = combine_arrays(model, empty, empty, empty, settings.verdict)
+    out: dict[str, np.ndarray] = {"field_density_used": np.where(np.isfinite(density), density,
+                                                                 np.nan if settings.pair_model.field_density_per_deg2
+                                                                 is None else settings.pair_model.field_density_per_deg2)}
+    for k, *_ in MODEL_TERMS:
+        out[k] = r[k]
+    out["delta_v_tangential_kms"] = r["delta_v_tangential_kms"]
+    out["circular_speed_kms"] = r["circular_speed_kms"]
+    for k in ("p_bound", "p_comoving", "p_chance", "p_physical", "p_bound_given_physical", "probability"):
+        out[k] = v[k]
+    status = np.array(STATUSES, dtype=object)[v["status"]]
+    out["status"] = status
+    out["probability_of"] = np.array([PROBABILITY_OF[s] for s in STATUSES], dtype=object)[v["status"]]
+    p = v["probability"]
+    limit = settings.pair_model.model_limit
+    out["limited_by_model"] = np.isfinite(p) & (np.minimum(p, 1 - p) < limit)
+    out["moved_most"] = strongest_arrays(model.terms, v["status"])
     return out
 
 

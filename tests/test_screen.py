@@ -136,7 +136,13 @@ def test_screen_and_weigh_give_the_same_numbers_for_the_same_pair(tmp_path, syst
                pmdec2=b.motion.pmdec, pmdec_error2=b.motion.pmdec_error,
                rv1=a.radial_velocity.value, rv_error1=a.radial_velocity.uncertainty,
                rv2=b.radial_velocity.value, rv_error2=b.radial_velocity.uncertainty,
-               mag1=a.magnitudes["V"].value, mag2=b.magnitudes["V"].value, mass1=a.mass.value, mass2=b.mass.value)
+               mag1=a.magnitudes["V"].value, mag2=b.magnitudes["V"].value, mass1=a.mass.value, mass2=b.mass.value,
+               mass_error1=a.mass.uncertainty, mass_error2=b.mass.uncertainty)
+    # weigh places the second star at the pair's separation and angle from the first (positions of other epochs)
+    from dossier.astro.angles import offset_position
+
+    ra2, dec2 = offset_position(a.position.ra, a.position.dec, pair.rho_arcsec, pair.theta_deg)
+    row.update(ra2=float(ra2), dec2=float(dec2))
     source = tmp_path / "pairs.csv"
     with open(source, "w", newline="", encoding="utf-8") as fh:  # repr: every digit of every float
         writer = csv.DictWriter(fh, fieldnames=HEADER)
@@ -156,15 +162,21 @@ def test_screen_and_weigh_give_the_same_numbers_for_the_same_pair(tmp_path, syst
                 assert got == "", (a_.rule, name, got)
             else:
                 assert float(got) == pytest.approx(value, rel=1e-9, abs=1e-12), (a_.rule, name)
-    # the screen weighs only its own lines of evidence: its verdict is weigh's combination of those
+    # the pair model's numbers are the same in both; the screen's verdict is weigh's verdict from the pair model
+    # alone (a screen has no observing log, orbits or ages)
     from dossier.rules.verdict import combine
 
-    screened = [a_ for a_ in result.for_subject("AB") if f"{a_.rule.replace('-', '_')}_outcome" in out]
-    assert len(screened) == 4
-    verdict = combine("AB", screened, project.settings.verdict)
+    model = next(a_ for a_ in result.for_subject("AB") if a_.rule == "pair-model")
+    numbers = {q.name: q.value for q in model.quantities}
+    for key in ("prior_log10", "parallax_log10", "motion_log10", "binding_prior_log10", "binding_motion_log10",
+                "p_bound", "p_comoving", "p_chance"):
+        assert float(out[key]) == pytest.approx(numbers[key], rel=1e-9, abs=1e-12), key
+    verdict = combine("AB", [model], project.settings.verdict, project.settings.pair_model.model_limit)
     assert out["status"] == verdict.status
+    assert out["probability_of"] == verdict.probability_of
     assert float(out["probability"]) == pytest.approx(verdict.probability, rel=1e-9)
     assert float(out["p_physical"]) == pytest.approx(verdict.p_physical, rel=1e-9)
+    assert float(out["p_bound_given_physical"]) == pytest.approx(verdict.p_bound_given_physical, rel=1e-9)
 
 
 def test_negative_and_tiny_parallaxes_are_data_not_errors(tmp_path):

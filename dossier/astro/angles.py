@@ -125,3 +125,18 @@ def propagate_linear(
     eta = np.asarray(pmdec, dtype=float) * dt / MAS_PER_RAD
     a, d = _from_tangent(a0, d0, xi, eta)
     return np.mod(np.degrees(a), 360.0), np.degrees(d)
+
+
+def offset_position(ra: ArrayLike, dec: ArrayLike, rho_arcsec: ArrayLike, theta_deg: ArrayLike
+                    ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """The position at separation ρ and position angle θ (north through east) from (ra, dec), degrees.
+
+    A point at angular distance ρ has gnomonic standard coordinates of radius tan ρ (xi = tan ρ sin θ east,
+    eta = tan ρ cos θ north), projected back to the sphere (Calabretta & Greisen 2002, A&A 395, 1077): the
+    great-circle separation is ρ exactly, for ρ < 90°.
+    """
+    a0, d0 = np.radians(np.asarray(ra, dtype=float)), np.radians(np.asarray(dec, dtype=float))
+    r = np.tan(np.asarray(rho_arcsec, dtype=float) / ARCSEC_PER_RAD)
+    t = np.radians(np.asarray(theta_deg, dtype=float))
+    a, d = _from_tangent(a0, d0, r * np.sin(t), r * np.cos(t))
+    return np.mod(np.degrees(a), 360.0), np.degrees(d)

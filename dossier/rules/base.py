@@ -18,6 +18,10 @@ Each assessment answers one *question*:
     Periodic motion about a common centre (a spectroscopic orbit): evidence
     both that the pair is physical and that it is bound; ``strength`` counts
     for both questions.
+``joint``
+    The pair model (:mod:`dossier.astro.pairmodel`): all the astrometry of
+    a pair weighed at once against three hypotheses; the verdict starts
+    from it.
 ``context``
     Derived quantities that other rules and the reader use (distances,
     separations, periods); no strength.
@@ -36,7 +40,7 @@ from numpy.typing import ArrayLike, NDArray
 from pydantic import BaseModel, ConfigDict
 
 Outcome = Literal["supports", "against", "neutral", "insufficient", "error"]
-Question = Literal["association", "binding", "orbit", "context"]
+Question = Literal["association", "binding", "orbit", "joint", "context"]
 SubjectKind = Literal["pair", "component"]
 
 GRADES = ("confirmed", "probable", "candidate", "doubtful", "refuted")
@@ -200,6 +204,26 @@ class Rule:
 
 
 @dataclass(frozen=True)
+class Contribution:
+    """One term of a verdict's log10 odds, as the verdict used it.
+
+    ``question`` is ``association`` (physical : chance), ``binding`` (bound : co-moving) or ``orbit``
+    (bound : the rest); ``rules`` are the rules whose data the term weighs; ``alone`` is the line's own
+    log10 likelihood ratio before the robust transform (independent lines only).
+    """
+
+    line: str
+    question: str
+    log10: float
+    rules: tuple[str, ...] = ()
+    alone: float | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"line": self.line, "question": self.question, "log10_used": self.log10, "rules": list(self.rules),
+                "log10_alone": self.alone}
+
+
+@dataclass(frozen=True)
 class Verdict:
     """A pair's status from all its assessments."""
 
@@ -208,20 +232,36 @@ class Verdict:
     probability: float | None
     p_physical: float | None
     p_bound_given_physical: float | None
-    log10_odds: float
+    log10_odds: float | None
     summary: str
     reasons_for: tuple[str, ...] = ()
     reasons_against: tuple[str, ...] = ()
     missing: tuple[str, ...] = field(default=())
+    probability_of: str = "P(physical)"
+    p_bound: float | None = None
+    p_comoving: float | None = None
+    p_chance: float | None = None
+    log10_bound_odds: float | None = None
+    contributions: tuple[Contribution, ...] = ()
+    moved_most: str | None = None
+    limited_by_model: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         return {
             "pair": self.pair,
             "status": self.status,
             "probability": self.probability,
+            "probability_of": self.probability_of,
+            "limited_by_model": self.limited_by_model,
             "p_physical": self.p_physical,
             "p_bound_given_physical": self.p_bound_given_physical,
+            "p_bound": self.p_bound,
+            "p_comoving": self.p_comoving,
+            "p_chance": self.p_chance,
             "log10_odds_physical": self.log10_odds,
+            "log10_odds_bound": self.log10_bound_odds,
+            "contributions": [c.to_dict() for c in self.contributions],
+            "moved_most": self.moved_most,
             "summary": self.summary,
             "reasons_for": list(self.reasons_for),
             "reasons_against": list(self.reasons_against),

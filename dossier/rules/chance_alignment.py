@@ -125,22 +125,39 @@ def kernel(rho_arcsec: np.ndarray, magnitude: np.ndarray, settings: Settings, le
     return result
 
 
-def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
+def density_table(facts: SystemFacts, subject: str) -> tuple[str, float, list] | str:
+    """(band, the fainter member's magnitude, the table's rows of that band sorted by magnitude) for a pair,
+    or the reason there is none."""
     pair = facts.pairs[subject]
-    if pair.rho_arcsec is None:
-        return RULE.insufficient(subject, "No separation.")
     table = facts.system.field_density or facts.settings.field_density
     if not table:
-        return RULE.insufficient(subject, "No field-star density: give field_density in the evidence or dossier.toml.")
+        return "No field-star density: give field_density in the evidence or dossier.toml."
     a, b = facts.stars[pair.first], facts.stars[pair.second]
     for band in dict.fromkeys(row.band for row in table):
         if band in a.magnitudes and band in b.magnitudes:
             break
     else:
-        return RULE.insufficient(subject, "The members have no magnitude in a band of the field-density table.")
+        return "The members have no magnitude in a band of the field-density table."
     faint = a if a.magnitudes[band].value > b.magnitudes[band].value else b
-    mag = faint.magnitudes[band].value
     rows = sorted((r for r in table if r.band == band), key=lambda r: r.brighter_than)
+    return band, faint.magnitudes[band].value, rows
+
+
+def density_at(mag: float, rows: list) -> float:
+    """Field stars per square degree brighter than ``mag``, interpolated in the table (as :func:`kernel` does)."""
+    density, _ = chance.density_at_magnitude(np.array([mag]), np.array([r.brighter_than for r in rows], float),
+                                             np.array([r.per_square_degree.value for r in rows], float))
+    return float(np.asarray(density)[0])
+
+
+def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
+    pair = facts.pairs[subject]
+    if pair.rho_arcsec is None:
+        return RULE.insufficient(subject, "No separation.")
+    found = density_table(facts, subject)
+    if isinstance(found, str):
+        return RULE.insufficient(subject, found)
+    band, mag, rows = found
     k = kernel(np.array([pair.rho_arcsec]), np.array([mag]), settings, facts.length_scale_kpc,
                table_magnitudes=np.array([r.brighter_than for r in rows]),
                table_densities=np.array([r.per_square_degree.value for r in rows]),

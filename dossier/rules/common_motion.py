@@ -18,7 +18,9 @@ Method
 
 Strength
     log10 of the likelihood ratio physical : optical of the measured
-    differences.
+    differences, for this line alone. A diagnostic: the verdict does not
+    multiply it in, because the pair model (``pair-model``) weighs the same
+    motions jointly with the parallaxes.
 
 Outcome
     ``supports`` when the strength exceeds +0.5, ``against`` below −0.5,
@@ -96,8 +98,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     outcome = "supports" if strength > settings.decisive else "against" if strength < -settings.decisive else "neutral"
     what = "tangential and radial" if used_rv else "tangential"
     text = (f"The {what} velocity difference is {dv:.2f} km/s (Δμ = {dmu:.2f} mas/yr at {dist[1]:.0f} pc); a physical "
-            f"pair allows about {sigma_int:.2f} km/s per axis, a field star {settings.field_dispersion_kms:.0f} km/s: "
-            f"likelihood ratio 10^{strength:.1f}.{note}")
+            f"pair allows about {sigma_int:.2f} km/s per axis, a field star {settings.field_dispersion_kms:.0f} km/s. "
+            f"A diagnostic: the verdict weighs the motions jointly in the pair model.{note}")
     quantities = (
         Quantity("delta_pm", "Proper-motion difference Δμ", dmu, "mas/yr"),
         Quantity("delta_v", f"Velocity difference ({what})", dv, "km/s", how="4.74047 μ d"),

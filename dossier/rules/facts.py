@@ -119,6 +119,7 @@ class Motion:
     pmra_error: float
     pmdec_error: float
     ref: str
+    correlation: float = float("nan")  # of the pmra and pmdec errors, where the source gives it
 
 
 @dataclass(frozen=True)
@@ -288,7 +289,9 @@ class SystemFacts:
                 position=None if pos is None else Position(pos.ra.value, pos.dec.value, julian_year(pos.epoch), _ref(pos.ra, pos)),
                 motion=None
                 if mot is None
-                else Motion(mot.pmra.value, mot.pmdec.value, mot.pmra.uncertainty, mot.pmdec.uncertainty, _ref(mot.pmra, mot)),
+                else Motion(mot.pmra.value, mot.pmdec.value, mot.pmra.uncertainty, mot.pmdec.uncertainty, _ref(mot.pmra, mot),
+                            float("nan") if mot.correlations is None or mot.correlations.pmra_pmdec is None
+                            else mot.correlations.pmra_pmdec),
                 radial_velocity=gamma if gamma is not None else comp.radial_velocity,
                 rv_from_orbit=gamma is not None,
                 mass=mass,

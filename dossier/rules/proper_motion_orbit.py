@@ -17,6 +17,9 @@ Strength
     anywhere within the escape value, unbound members of a loose group one
     above it, drawn from the group's dispersion ``group_dispersion_kms``.
     A Δμ measured less precisely than the escape value gives a ratio near 1.
+    This line alone: the verdict does not multiply it in, because the pair
+    model (``pair-model``) weighs the same motions jointly, with unresolved
+    companions allowed for.
     Projection makes the test one-sided: the true 3-D speed and separation
     can only make a bound orbit harder, so passing it is necessary, not
     sufficient.
@@ -75,15 +78,6 @@ def binding_strength(log_lr: NDArray) -> tuple[NDArray, NDArray]:
     x = log_lr / math.log(10)
     strength = np.where(np.isnan(x), STRENGTH_LIMIT, np.clip(x, -STRENGTH_LIMIT, STRENGTH_LIMIT))
     return strength, 1.0 / (1.0 + 10.0 ** (-strength))
-
-
-def lr_text(strength: float) -> str:
-    """'10^1.3', or 'below 10^-99' / 'above 10^99' where the strength was clipped."""
-    if strength <= -STRENGTH_LIMIT:
-        return f"below 10^-{STRENGTH_LIMIT:.0f}"
-    if strength >= STRENGTH_LIMIT:
-        return f"above 10^{STRENGTH_LIMIT:.0f}"
-    return f"10^{strength:.1f}"
 
 
 def outcome_codes(strength: NDArray, decisive: float) -> NDArray:
@@ -191,12 +185,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     el_badry = bool(one["within_limit"][0])
     text = (f"Δμ = {dmu:.3f} ± {sigma:.3f} mas/yr against {orbit:.3f} mas/yr for a circular orbit of {mass[0]:.2f} M☉ "
             f"at {pair.rho_arcsec:.2f}″ and {escape:.3f} mas/yr for escape: "
-            + ("within the El-Badry et al. limit" if el_badry else "beyond the El-Badry et al. limit")
-            + f"; likelihood ratio bound : unbound {lr_text(strength)}.")
-    if outcome == "against":
-        text += " The pair moves too fast to be bound."
-    elif outcome == "neutral":
-        text += " The measurement cannot tell bound from unbound."
+            + ("within the El-Badry et al. limit." if el_badry else "beyond the El-Badry et al. limit.")
+            + " A diagnostic: the verdict weighs the motions in the pair model, which allows for unresolved companions.")
     quantities = (
         Quantity("delta_pm", "Proper-motion difference Δμ", dmu, "mas/yr", sigma, how="σ_Δμ of El-Badry et al. 2021"),
         Quantity("orbit_limit", "Largest circular-orbit Δμ", orbit, "mas/yr",

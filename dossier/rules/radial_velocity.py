@@ -15,7 +15,8 @@ Strength
     (:mod:`dossier.astro.binding`): bound, the true difference lies within
     the escape speed; unbound, it is above it, drawn from a loose group's
     dispersion ``group_dispersion_kms``. An imprecise ΔRV gives a ratio
-    near 1 and does not move the verdict.
+    near 1. This line alone: the verdict does not multiply it in, because
+    the pair model (``pair-model``) weighs the same velocities jointly.
 
 Outcome
     ``supports`` above +0.5, ``against`` below −0.5, ``neutral`` between.
@@ -49,7 +50,6 @@ from dossier.rules.facts import SystemFacts
 from dossier.rules.proper_motion_orbit import (
     LN_STRENGTH_LIMIT,
     binding_strength,
-    lr_text,
     outcome_codes,
 )
 
@@ -143,7 +143,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
                                    "escape_speed", "strength", "p_bound"))
     outcome = OUTCOME_NAMES[int(one["outcome"][0]) + 2]
     text = (f"ΔRV = {diff:+.2f} ± {sigma:.2f} km/s against a circular speed of {v_c:.2f} km/s and an escape speed of "
-            f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au: likelihood ratio bound : unbound {lr_text(strength)}.")
+            f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au. A diagnostic: the verdict weighs the RVs in the pair model.")
     for star in (a, b):
         if star.rv_from_orbit:
             text += f" {star.id}'s velocity is the systemic γ of its {star.radial_velocity.ref}."

@@ -18,6 +18,7 @@ from dossier.rules import (
     neighbours,
     orbit_consistency,
     orbit_fit,
+    pair_model,
     parallax_agreement,
     proper_motion_orbit,
     radial_velocity,
@@ -30,6 +31,7 @@ from dossier.rules.base import Rule, RuleSettings
 
 RULES: tuple[Rule, ...] = (
     distance.RULE,
+    pair_model.RULE,
     parallax_agreement.RULE,
     common_motion.RULE,
     chance_alignment.RULE,

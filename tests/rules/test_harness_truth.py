@@ -26,25 +26,21 @@ def test_optical_pairs_are_called_optical(seed):
     by_rule = {a.rule: a for a in result.for_subject("AB")}
     assert by_rule["parallax-agreement"].outcome == "against"
     assert result.verdicts["AB"].status == "optical"
-    # the verdict lists the parallax disagreement among its reasons
-    assert any("Parallax agreement" in r for r in result.verdicts["AB"].reasons_for)
+    # the verdict lists the parallax disagreement among its reasons, with the value it used
+    assert any(r.startswith("Parallaxes: -") for r in result.verdicts["AB"].reasons_for)
 
 
-def test_comoving_pairs_are_called_comoving_unless_projection_hides_their_motion():
-    # Projection can hide a velocity difference that lies along the line of sight: then the
-    # sky-plane motion is honestly compatible with a bound orbit. Demand the right call where the
-    # sky-plane difference exceeds escape, and a physical call (never optical) everywhere.
+def test_comoving_pairs_beyond_the_tidal_limit_are_called_comoving():
+    # Projection can hide most of a velocity difference (a small difference on the sky is what a bound
+    # pair shows too): such a pair may stay undetermined, never bound or optical.
     called = []
-    for seed in range(24):
+    for seed in range(12):
         result = weigh_system(harness.simulate("co-moving", seed), harness.settings())
-        pm = next(a for a in result.for_subject("AB") if a.rule == "proper-motion-orbit")
-        status = result.verdicts["AB"].status
-        assert status != "optical", seed
-        dmu, escape = pm.quantity("delta_pm"), pm.quantity("escape_limit")
-        if dmu.value - 3 * dmu.uncertainty > escape.value:
-            assert status == "co-moving", seed
-        called.append(status == "co-moving")
-    assert sum(called) >= 0.7 * len(called)
+        v = result.verdicts["AB"]
+        assert v.status in ("co-moving", "undetermined"), (seed, v.summary)
+        assert v.p_physical > 0.99, (seed, v.summary)
+        called.append(v.status == "co-moving")
+    assert sum(called) >= 10
 
 
 def test_missing_radial_velocities_leave_that_rule_insufficient_not_failing():
