@@ -63,6 +63,7 @@ def synthetic_pairs(n: int, seed: int = 1) -> dict[str, np.ndarray]:
         "rv2": rv2, "rv_error2": np.where(has_rv, err(0.5), np.nan),
         "mag1": mag1, "mag2": mag1 + rng.uniform(0, 5, n),
         "mass1": np.full(n, np.nan), "mass2": np.full(n, np.nan),
+        "field_density": 10 ** rng.uniform(2, 3.5, n),  # field stars per deg², so that the pair model runs everywhere
     }
 
 

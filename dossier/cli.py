@@ -182,7 +182,7 @@ def weigh(project: Path, system_id: str | None, as_json: bool) -> None:
     else:
         from rich.console import Console
 
-        print_results(Console(), results)
+        print_results(Console(), results, loaded.settings.pair_model.model_limit)
 
 
 @cli.command()

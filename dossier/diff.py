@@ -2,9 +2,11 @@
 
 :func:`state_of` reduces one weighed system to a *state*: a JSON-ready
 dictionary of what its dossier says (measured values with their sources,
-observing-log summaries, derived values, cited sources, assessments,
-verdicts and companion-claim grades). A release stores its state, so that
-what a dossier said then is kept even when Dossier's rules change later.
+observing-log summaries, derived values, cited sources, assessments (with
+how the verdict used each), verdicts (the status and its named
+probability), the terms of each verdict's odds as used, and companion-claim
+grades). A release stores its state, so that what a dossier said then is
+kept even when Dossier's rules change later.
 
 :func:`compare` lists the :class:`Change` entries between two states;
 :func:`to_markdown` and :func:`print_changes` show them, for a review
@@ -24,15 +26,17 @@ from collections import Counter
 from dataclasses import dataclass
 from typing import Any, Literal
 
-from dossier.fmt import fmt_number, fmt_probability
+from dossier.fmt import fmt_log10, fmt_number
+from dossier.render.terms import ODDS, labelled, probability_label
 
 #: Format of a state; bumped when a key changes meaning or goes away.
 STATE_FORMAT_VERSION = 1
 
-Kind = Literal["value", "log", "derived", "source", "assessment", "verdict", "grade", "system"]
+Kind = Literal["value", "log", "derived", "source", "assessment", "verdict", "term", "grade", "system"]
 KIND_TITLES: dict[str, str] = {
     "system": "Systems",
     "verdict": "Verdicts",
+    "term": "Terms of the verdicts",
     "grade": "Companion-claim grades",
     "source": "Sources",
     "value": "Measured values",
@@ -119,13 +123,24 @@ def state_of(project, result) -> dict[str, Any]:
         if row.kind == "derived":
             derived[row.field] = {"subject": row.subject, "value": _num(row.value),
                                   "uncertainty": _num(row.uncertainty), "unit": row.unit, "rule": row.rule}
+    from dossier.render.terms import uses
+
     assessments = {}
+    used = uses(result)
     for a in result.assessments:
-        assessments[f"{a.rule} · {a.subject}"] = {
-            "rule": a.rule, "rule_version": a.rule_version, "subject": a.subject, "outcome": a.outcome,
-            "strength": _num(a.strength), "explanation": a.explanation}
-    verdicts = {pid: {"status": v.status, "probability": _num(v.probability), "summary": v.summary}
+        entry = {"rule": a.rule, "rule_version": a.rule_version, "subject": a.subject, "outcome": a.outcome,
+                 "strength": _num(a.strength), "explanation": a.explanation}
+        role = used[(a.rule, a.subject_kind, a.subject)].in_verdict
+        if role is not None:  # how the verdict used it: a diagnostic's strength is not a term of the odds
+            entry["in_verdict"] = role
+        assessments[f"{a.rule} · {a.subject}"] = entry
+    limit = project.settings.pair_model.model_limit
+    verdicts = {pid: {"status": v.status, "probability": _num(v.probability), "probability_of": v.probability_of,
+                      "model_limit": limit, "summary": v.summary}
                 for pid, v in result.verdicts.items()}
+    terms = {f"{pid} · {c.line}": {"pair": pid, "line": c.line, "question": c.question, "log10": _num(c.log10),
+                                   "alone": _num(c.alone), "rules": list(c.rules)}
+             for pid, v in result.verdicts.items() for c in v.contributions}
     grades = {a.subject: {"grade": a.grade, "reasons": list(a.reasons)}
               for a in result.assessments if a.grade is not None}
     system = result.system
@@ -140,6 +155,7 @@ def state_of(project, result) -> dict[str, Any]:
         "sources": {ref: source.citation for ref, source in cited_sources(project, result)},
         "assessments": assessments,
         "verdicts": verdicts,
+        "terms": terms,
         "grades": grades,
         "reviews": [{"by": r.by, "on": r.on.isoformat(), "decision": r.decision, "comment": r.comment}
                     for r in system.reviews],
@@ -199,12 +215,37 @@ def _fmt_log(entry: dict[str, Any]) -> str:
 
 
 def _fmt_assessment(entry: dict[str, Any]) -> str:
-    strength = "" if entry["strength"] is None else f", log10 LR {entry['strength']:+.2f}"
+    """An assessment as the dossier shows it: a diagnostic of the pair model shows no log10 of its own, which
+    the verdict does not use (states of releases made before the pair model have no ``in_verdict``)."""
+    role = entry.get("in_verdict")
+    if role == "diagnostic":
+        strength = ", weighed in the pair model"
+    elif entry["strength"] is None:
+        strength = ""
+    elif role == "pair-model":
+        strength = f", log10 odds physical : chance alignment {fmt_log10(entry['strength'])}"
+    else:
+        strength = f", log10 LR {fmt_log10(entry['strength'])}"
     return f"{entry['outcome']}{strength}: {entry['explanation']}"
 
 
+def verdict_label(entry: dict[str, Any]) -> str:
+    """What a stored verdict's probability is the probability of (older states name it by the status)."""
+    return probability_label(entry["status"], entry.get("probability_of"))
+
+
 def _fmt_verdict(entry: dict[str, Any]) -> str:
-    return f"{entry['status']} (probability {fmt_probability(entry['probability'])})"
+    """'optical (P(chance alignment) > 0.999999 (limit of the model))': the status and its named probability."""
+    return f"{entry['status']} ({labelled(entry['probability'], verdict_label(entry), entry.get('model_limit'))})"
+
+
+def _fmt_term(entry: dict[str, Any]) -> str:
+    """'+3.00 in log10 odds physical : chance alignment (alone +1719)': a term of a verdict as used."""
+    text = f"{fmt_log10(entry['log10'])} in log10 odds {ODDS.get(entry['question'], entry['question'])}"
+    alone = entry.get("alone")
+    if alone is not None and fmt_log10(alone) != fmt_log10(entry["log10"]):
+        text += f" (alone {fmt_log10(alone)})"
+    return text
 
 
 def _fmt_grade(entry: dict[str, Any]) -> str:
@@ -225,6 +266,7 @@ def _same_shown(fmt):
 _SECTIONS = (
     # (kind, state key, formatter, equality)
     ("verdict", "verdicts", _fmt_verdict, _same_shown(_fmt_verdict)),
+    ("term", "terms", _fmt_term, _same_shown(_fmt_term)),
     ("grade", "grades", _fmt_grade, _same_measured),
     ("source", "sources", str, _same_measured),
     ("value", "values", _fmt_value, _same_measured),

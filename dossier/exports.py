@@ -19,14 +19,24 @@ COLUMNS = (
     ("first", None, "First member"),
     ("second", None, "Second member"),
     ("status", None, "bound, co-moving, optical or undetermined"),
-    ("probability", "", "Probability of the status (NaN when nothing could be weighed)"),
-    ("p_physical", "", "P(physical) from the association evidence (NaN if none)"),
-    ("p_bound_given_physical", "", "P(bound | physical) from the binding evidence (NaN if none)"),
-    ("log10_odds_physical", "", "log10 posterior odds physical : optical"),
+    ("probability_of", None, "What probability is the probability of: P(bound), P(co-moving), P(chance alignment) "
+                             "or P(physical)"),
+    ("probability", "", "Probability of the status, named by probability_of (NaN when nothing could be weighed)"),
+    ("limited_by_model", None, "Whether the probability is nearer 0 or 1 than the model's limit (model_limit): "
+                               "then it is a limit of the model, not a measurement"),
+    ("p_bound", "", "P(bound) (NaN if the verdict has none)"),
+    ("p_comoving", "", "P(co-moving), physical but not bound (NaN if none)"),
+    ("p_chance", "", "P(chance alignment), an optical pair (NaN if none)"),
+    ("p_physical", "", "P(physical) = P(bound) + P(co-moving) (NaN if none)"),
+    ("p_bound_given_physical", "", "P(bound | physical) (NaN if none)"),
+    ("log10_odds_physical", "", "log10 odds physical : chance alignment, as the verdict used them (NaN if none)"),
+    ("log10_odds_bound", "", "log10 odds bound : co-moving, as the verdict used them (NaN if none)"),
     ("rho", "arcsec", "Separation"),
     ("theta", "deg", "Position angle, north through east"),
     ("distance", "pc", "Distance of the pair (posterior median)"),
 )
+#: The columns that hold text (the others are floats, NaN where there is no value; limited_by_model is a bool).
+TEXT_COLUMNS = ("system", "pair", "first", "second", "status", "probability_of")
 
 
 def _nan(x: float | None) -> float:
@@ -40,9 +50,11 @@ def pair_rows(sid: str, result: SystemResult) -> list[tuple]:
         v = result.verdicts[pair.id]
         f = result.facts.pairs[pair.id]
         dist = result.facts.pair_distance_pc(pair.id)
-        rows.append((sid, pair.id, pair.members[0], pair.members[1], v.status, _nan(v.probability),
-                     _nan(v.p_physical), _nan(v.p_bound_given_physical), float(v.log10_odds),
-                     _nan(f.rho_arcsec), _nan(f.theta_deg), _nan(dist[1] if dist else None)))
+        rows.append((sid, pair.id, pair.members[0], pair.members[1], v.status, v.probability_of,
+                     _nan(v.probability), bool(v.limited_by_model), _nan(v.p_bound), _nan(v.p_comoving),
+                     _nan(v.p_chance), _nan(v.p_physical), _nan(v.p_bound_given_physical), _nan(v.log10_odds),
+                     _nan(v.log10_bound_odds), _nan(f.rho_arcsec), _nan(f.theta_deg),
+                     _nan(dist[1] if dist else None)))
     return rows
 
 
@@ -55,8 +67,9 @@ def rows_table(rows: list[tuple]):
     from astropy.table import Table
 
     rows = [tuple(row) for row in rows]
-    table = Table(rows=rows, names=[c[0] for c in COLUMNS],
-                  dtype=[str, str, str, str, str] + [float] * 7) if rows else Table(names=[c[0] for c in COLUMNS])
+    names = [c[0] for c in COLUMNS]
+    dtype = [str if n in TEXT_COLUMNS else bool if n == "limited_by_model" else float for n in names]
+    table = Table(rows=rows, names=names, dtype=dtype) if rows else Table(names=names, dtype=dtype)
     for name, unit, description in COLUMNS:
         if unit is not None:
             table[name].unit = unit or None

@@ -48,3 +48,18 @@ def p_statement(label: str, p: float | None, limit: float | None = None) -> str:
     """'P(physical) = 0.973' or 'P(physical) > 0.999999 (limit of the model)'."""
     text = fmt_probability(p, limit)
     return f"{label} {text}" if text[0] in "<>" else f"{label} = {text}"
+
+
+def fmt_log10(value: float | None, minus: str = "-") -> str:
+    """A term of a verdict's log10 odds, signed: '+5.03', '-0.38', '+1718.8', '+2668'; '—' for none.
+
+    Two decimals below 100 (a term that rounds to 0.00 keeps its sign: it still points one way), fewer above:
+    nothing is capped, the number is the one the verdict used or the line gave alone.
+    """
+    if value is None or not math.isfinite(value):
+        return "—"
+    if value == 0:
+        return "0.00"
+    size = abs(value)
+    text = f"{value:+.2f}" if size < 100 else f"{value:+.1f}" if size < 1000 else f"{value:+.0f}"
+    return text.replace("-", minus)

@@ -12,7 +12,7 @@ from typing import Any
 
 from dossier import __version__
 from dossier.engine import SystemResult
-from dossier.fmt import fmt_number, fmt_probability
+from dossier.fmt import MODEL_LIMIT, fmt_log10, fmt_number
 from dossier.rules.registry import RULES
 
 FORMAT_VERSION = 1
@@ -29,14 +29,20 @@ def _clean(value: Any) -> Any:
 
 
 def system_dict(result: SystemResult) -> dict[str, Any]:
+    """One system of the JSON: its verdicts, and every assessment with how its pair's verdict used it
+    (``in_verdict``, see ``docs/weigh-json.md``)."""
+    from dossier.render.terms import uses
+
     system = result.system
+    used = uses(result)
     return {
         "id": system.id,
         "title": system.title,
         "components": list(system.components),
         "pairs": [{"id": p.id, "members": list(p.members), "parent": p.parent} for p in system.pairs],
         "verdicts": [result.verdicts[p.id].to_dict() for p in system.pairs],
-        "assessments": [a.to_dict() for a in result.assessments],
+        "assessments": [{**a.to_dict(), "in_verdict": used[(a.rule, a.subject_kind, a.subject)].in_verdict}
+                        for a in result.assessments],
     }
 
 
@@ -85,10 +91,27 @@ def _statistic(a) -> str:
     return f"{s.label} = {s.value:.3g}{(' ' + s.unit) if s.unit else ''}"
 
 
-def print_results(console, results: dict[str, SystemResult]) -> None:
-    """Rich tables: per system, the verdict of each pair and the assessments behind it."""
+def _used_text(use) -> str:
+    """The log10 column of the terminal table: the value the verdict used, never a diagnostic's own."""
+    if use.role == "diagnostic":
+        return "in the pair model"
+    if use.role == "term" and use.differs:
+        return f"{fmt_log10(use.log10)} (alone {fmt_log10(use.alone)})"
+    if use.role == "standalone":
+        return f"{fmt_log10(use.log10)} (not used)"
+    return "" if use.log10 is None else fmt_log10(use.log10)
+
+
+def print_results(console, results: dict[str, SystemResult], model_limit: float | None = None) -> None:
+    """Rich tables: per system, the verdict of each pair, the terms of its odds and the assessments behind it.
+
+    ``model_limit``: the project's ``[pair_model] model_limit`` (probabilities beyond it read as the limit
+    of the model); the default limit when not given.
+    """
     from rich.table import Table
     from rich.text import Text
+
+    from dossier.render.terms import ODDS, labelled, uses
 
     for result in results.values():
         system = result.system
@@ -117,26 +140,47 @@ def print_results(console, results: dict[str, SystemResult]) -> None:
                 style = {"confirmed": "green", "probable": "green", "candidate": "yellow"}.get(a.grade, "red")
                 table.add_row(a.subject, Text(a.grade, style=style), "\n".join(a.reasons))
             console.print(table)
+        limit = model_limit if model_limit is not None else MODEL_LIMIT
+        used = uses(result)
         for pair in system.pairs:
             v = result.verdicts[pair.id]
             head = Text()
             head.append(f"Pair {pair.id} ({' + '.join(pair.members)}): ")
             head.append(v.status.upper(), style=STATUS_STYLE[v.status])
-            head.append(f"  probability {fmt_probability(v.probability)}")
-            head.append(f"   P(physical) {fmt_probability(v.p_physical)}, P(bound | physical) "
-                        f"{fmt_probability(v.p_bound_given_physical)}")
+            head.append(f"  {labelled(v.probability, v.probability_of, limit)}")
+            if v.status == "undetermined" and v.p_bound_given_physical is not None:  # why: physical, binding open?
+                head.append(f", {labelled(v.p_bound_given_physical, 'P(bound | physical)', limit)}")
             console.print(head)
+            if v.probability is not None:
+                console.print(Text(", ".join(labelled(p, label, limit) for p, label in (
+                    (v.p_bound, "P(bound)"), (v.p_comoving, "P(co-moving)"), (v.p_chance, "P(chance alignment)"),
+                    (v.p_physical, "P(physical)"), (v.p_bound_given_physical, "P(bound | physical)"))), style="dim"))
             console.print(Text(v.summary, style="italic"))
+            if v.contributions:
+                terms = Table(title="Terms of the verdict (log10 odds, as used)", title_justify="left", expand=False)
+                terms.add_column("Line of evidence")
+                terms.add_column("Odds it moves")
+                terms.add_column("log10 used", justify="right", no_wrap=True)
+                alone = [fmt_log10(c.alone) if c.alone is not None and fmt_log10(c.alone) != fmt_log10(c.log10)
+                         else "" for c in v.contributions]
+                if any(alone):
+                    terms.add_column("alone", justify="right", no_wrap=True)
+                for c, own in zip(v.contributions, alone):
+                    line = Text(c.line)
+                    if c.line == v.moved_most:
+                        line.append("  (moved it most)", style="bold")
+                    terms.add_row(line, ODDS.get(c.question, c.question), fmt_log10(c.log10), *([own] if any(alone) else []))
+                console.print(terms)
             table = Table(expand=True, show_lines=True)
             table.add_column("Rule", min_width=max(len(r.id) for r in RULES), no_wrap=True)
             table.add_column("Outcome", max_width=9)
-            table.add_column("log10 LR", justify="right", no_wrap=True, max_width=9)
+            table.add_column("log10 in the verdict", justify="right", max_width=17)
             table.add_column("Explanation", ratio=1, min_width=30)
             for a in result.for_subject(pair.id):
                 table.add_row(
                     a.rule,
                     Text(SHORT_OUTCOME[a.outcome], style=OUTCOME_STYLE[a.outcome]),
-                    "" if a.strength is None else f"{a.strength:+.2f}",
+                    _used_text(used[(a.rule, a.subject_kind, a.subject)]),
                     a.explanation,
                 )
             console.print(table)

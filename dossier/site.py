@@ -127,11 +127,24 @@ def _assumptions(project: Project) -> list[tuple[str, str, str]]:
     rows = []
     for name, field in type(project.settings.verdict).model_fields.items():
         rows.append(("verdict", name, str(getattr(project.settings.verdict, name))))
+    for name in type(project.settings.pair_model).model_fields:
+        rows.append(("pair model", name, _setting_text(getattr(project.settings.pair_model, name))))
     for rule in RULES:
         values = rule_settings(project.settings.rules, rule)
         for name in type(values).model_fields:
             rows.append((rule.id, name, str(getattr(values, name))))
     return rows
+
+
+def _setting_text(value) -> str:
+    """A setting as it reads in dossier.toml terms: models as their fields, tuples as lists."""
+    if hasattr(value, "model_dump"):
+        value = value.model_dump()
+    if isinstance(value, (tuple, list)):
+        return "[" + ", ".join(_setting_text(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{k} = {_setting_text(v)}" for k, v in value.items()) + "}"
+    return str(value)
 
 
 @dataclass(frozen=True)
@@ -149,8 +162,9 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
 
     The files of each release are copied into the site as they are, by :func:`site_pages`.
     """
-    from dossier.diff import compare, grouped, state_of, summary
+    from dossier.diff import compare, grouped, state_of, summary, verdict_label
     from dossier.release import content_hash, evidence_files, version_label
+    from dossier.render.terms import ODDS
 
     pages: dict[str, str] = {}
     label = version_label(history, content_hash(evidence_files(project.root, sid)))
@@ -160,7 +174,8 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
         previous = history[i - 1] if i else None
         following = history[i + 1].number if i + 1 < len(history) else None
         pages[base + "index.html"] = render_page(
-            "release.html", root="../../../../", sid=sid, meta=rel.meta, state=rel.state,
+            "release.html", root="../../../../", sid=sid, meta=rel.meta, state=rel.state, verdict_label=verdict_label,
+            odds=ODDS,
             previous=previous.number if previous else None, following=following, **common)
         changes = compare(previous.state, rel.state) if previous else []
         if previous:
@@ -185,8 +200,11 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
 
 
 def _common(settings) -> dict:
-    """What every page's template takes from the settings."""
-    return {"project": settings.project, "version": __version__, "verdict_settings": settings.verdict}
+    """What every page's template takes from the settings (``model_limit``: for the filters ``probability``
+    and ``labelled``, so that a probability beyond it reads as the limit of the model)."""
+    limit = settings.pair_model.model_limit
+    return {"project": settings.project, "version": __version__, "verdict_settings": settings.verdict,
+            "model_limit": limit, "model_limit_text": f"{limit:.15f}".rstrip("0")}
 
 
 def system_unit(project: Project, result: SystemResult, drawn: dict, releases: list, pdf: bool) -> dict:
@@ -203,6 +221,7 @@ def system_unit(project: Project, result: SystemResult, drawn: dict, releases: l
     from dossier.exports import pair_rows
     from dossier.provenance import cited_sources, prov_json, provenance_rows
     from dossier.render.catalogue import search_text
+    from dossier.render.terms import ODDS, uses
     from dossier.report import join_systems_json, system_dict, system_json_item
     from dossier.rules.verdict import strongest
 
@@ -233,8 +252,10 @@ def system_unit(project: Project, result: SystemResult, drawn: dict, releases: l
         grades=[a for a in result.assessments if a.grade is not None],
         assumptions=_assumptions(project),
         history=history,
-        strongest={p.id: strongest([a for a in result.for_subject(p.id) if a.subject_kind == "pair"],
-                                   result.verdicts[p.id].status) for p in result.system.pairs},
+        strongest={p.id: strongest(result.verdicts[p.id].contributions, result.verdicts[p.id].status)
+                   for p in result.system.pairs},
+        uses=uses(result),
+        odds=ODDS,
         with_pdf=pdf,
         with_log=log_file.is_file(),
         **common,
@@ -244,7 +265,9 @@ def system_unit(project: Project, result: SystemResult, drawn: dict, releases: l
     pages[f"systems/{sid}/provenance.json"] = json.dumps(prov_json(project, result), indent=2, sort_keys=True,
                                                          ensure_ascii=False) + "\n"
     row = {k: v for k, v in system_row(result, history).items() if k != "result"}
-    row["pairs"] = [[p.id, result.verdicts[p.id].status, result.verdicts[p.id].probability] for p in result.system.pairs]
+    verdicts = [result.verdicts[p.id] for p in result.system.pairs]
+    row["pairs"] = [[p.id, v.status, v.probability, v.probability_of, v.p_bound_given_physical]
+                    for p, v in zip(result.system.pairs, verdicts)]
     summary = {"row": row, "search": search_text(result), "weigh": weigh, "catalogue": pair_rows(sid, result)}
     # what a later build reads back from the cache, exactly: one path to the bytes, cached or not
     return {"pages": pages, **json.loads(json.dumps(summary))}
@@ -263,8 +286,9 @@ def _catalogue_row(unit: dict) -> dict:
     from types import SimpleNamespace
 
     row = dict(unit["row"])
-    pairs = [SimpleNamespace(id=pid) for pid, _, _ in row["pairs"]]
-    verdicts = {pid: SimpleNamespace(status=status, probability=p) for pid, status, p in row.pop("pairs")}
+    pairs = [SimpleNamespace(id=pid) for pid, *_ in row["pairs"]]
+    verdicts = {pid: SimpleNamespace(status=status, probability=p, probability_of=label, p_bound_given_physical=bg)
+                for pid, status, p, label, bg in row.pop("pairs")}
     row["result"] = _Listed(SimpleNamespace(pairs=pairs), verdicts)
     row["search_text"] = unit["search"]
     return row
@@ -305,6 +329,7 @@ def site_pages(settings, root: Path, units: dict[str, dict], releases: dict[str,
     pages["search-index.js"] = search_index_js(summaries)
     pages["methods.html"] = render_page("methods.html", root="", rules=[
         (r, *doc_sections(r.doc)) for r in RULES], verdict_doc=doc_sections(_verdict_doc()), **common)
+    pages[VERDICTS_PAGE] = verdicts_page(common)
     pages["weigh.json"] = join_systems_json(info.title, [unit["weigh"] for unit in units.values()])
     table = rows_table([row for unit in units.values() for row in unit["catalogue"]])
     pages["catalogue.ecsv"] = ecsv_text(table)
@@ -361,6 +386,22 @@ def render_pdfs(html_pages: dict[str, str], cache=None) -> dict[str, bytes]:
         if cache is not None:
             cache.put_bytes("pdf", key(html), data)
     return dict(sorted(out.items()))
+
+
+#: The site's page "How verdicts are computed", rendered from ``templates/verdicts.md``.
+VERDICTS_PAGE = "verdicts.html"
+
+
+def verdicts_page(common: dict) -> str:
+    """The page "How verdicts are computed": ``templates/verdicts.md`` through the notes' Markdown renderer."""
+    path = templates_dir() / "verdicts.md"
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise DossierError(f"{path}: cannot be read ({exc.strerror}). Fix: reinstall dossier, or restore "
+                           "templates/verdicts.md in a source checkout.") from exc
+    first = next((line for line in text.splitlines() if line.startswith("# ")), "# How verdicts are computed")
+    return render_page("verdicts.html", root="", title=first[2:].strip(), body_html=render_markdown(text), **common)
 
 
 def _verdict_doc() -> str:
@@ -661,7 +702,7 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
 
 
 #: A site built from cached units must equal one built afresh; bump when :func:`system_unit` changes shape.
-UNIT_FORMAT = 1
+UNIT_FORMAT = 2
 #: Libraries whose versions can change a page, a figure or a number: part of every cache key of a build.
 OUTPUT_PACKAGES = ("numpy", "scipy", "astropy", "pyerfa", "matplotlib", "jinja2", "markdown-it-py", "pydantic")
 #: Below this many systems to weigh, draw and render, a build stays in one process (a worker takes seconds to start).

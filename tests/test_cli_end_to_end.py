@@ -18,8 +18,14 @@ EXPECTED = {  # the demo's fictional scenario (demo_project/systems/*/evidence.y
     ("heron-1", "AC"): "undetermined",
     ("heron-1", "Ba-Bb"): "bound",
     ("heron-1", "AD"): "optical",
-    ("wren-9", "AB"): "co-moving",
+    ("wren-9", "AB"): "undetermined",  # physical, but bound only if one star hides a companion: binding open
 }
+#: What each status' probability is the probability of (dossier/rules/verdict.py, "Status").
+PROBABILITY_OF = {"bound": "P(bound)", "co-moving": "P(co-moving)", "optical": "P(chance alignment)",
+                  "undetermined": "P(physical)"}
+#: Rules whose data the pair model weighs: their own strengths are diagnostics, never terms of a verdict.
+JOINT_RULES = {"parallax-agreement", "common-motion", "chance-alignment", "proper-motion-orbit",
+               "radial-velocity-agreement"}
 
 
 @pytest.fixture(scope="module")
@@ -36,10 +42,53 @@ def test_weigh_json_is_the_documented_format(weighed):
         for a in system["assessments"]:
             assert set(a) == {"rule", "rule_version", "title", "subject", "subject_kind", "question", "outcome",
                               "strength", "probability", "statistic", "quantities", "explanation", "method",
-                              "sources", "grade", "reasons"}
+                              "sources", "grade", "reasons", "in_verdict"}
         for v in system["verdicts"]:
-            assert set(v) == {"pair", "status", "probability", "p_physical", "p_bound_given_physical",
-                              "log10_odds_physical", "summary", "reasons_for", "reasons_against", "missing"}
+            assert set(v) == {"pair", "status", "probability", "probability_of", "limited_by_model", "p_physical",
+                              "p_bound_given_physical", "p_bound", "p_comoving", "p_chance", "log10_odds_physical",
+                              "log10_odds_bound", "contributions", "moved_most", "summary", "reasons_for",
+                              "reasons_against", "missing"}
+            for term in v["contributions"]:
+                assert set(term) == {"line", "question", "log10_used", "rules", "log10_alone"}
+
+
+def test_every_verdict_names_its_probability_and_the_term_that_moved_it(weighed):
+    limit = 1e-6  # [pair_model] model_limit, default (the demo does not set it)
+    for system in weighed["systems"]:
+        for v in system["verdicts"]:
+            assert v["probability_of"] == PROBABILITY_OF[v["status"]], (system["id"], v["pair"])
+            p = v["probability"]
+            if p is None:
+                assert v["contributions"] == [] and v["moved_most"] is None
+                continue
+            named = {"P(bound)": v["p_bound"], "P(co-moving)": v["p_comoving"], "P(chance alignment)": v["p_chance"],
+                     "P(physical)": v["p_physical"]}
+            assert p == named[v["probability_of"]]
+            assert v["limited_by_model"] == (min(p, 1 - p) < limit)
+            if v["limited_by_model"]:
+                assert f"{v['probability_of']} > 0.999999 (limit of the model)" in v["summary"]
+            assert v["moved_most"] in {t["line"] for t in v["contributions"]}
+            assert f"Moved most by: {v['moved_most'].lower()}" in v["summary"]
+
+
+def test_diagnostics_of_the_pair_model_are_no_terms_of_the_verdict(weighed):
+    for system in weighed["systems"]:
+        verdicts = {v["pair"]: v for v in system["verdicts"]}
+        for a in system["assessments"]:
+            if a["subject_kind"] != "pair":
+                assert a["in_verdict"] is None
+            elif a["rule"] in JOINT_RULES:
+                assert a["in_verdict"] == "diagnostic"
+            elif a["rule"] == "pair-model":
+                assert a["in_verdict"] == "pair-model"
+            elif a["in_verdict"] == "term":
+                used = [t for t in verdicts[a["subject"]]["contributions"] if t["rules"] == [a["rule"]]]
+                assert len(used) == 1 and used[0]["log10_alone"] == a["strength"]
+        for v in system["verdicts"]:
+            for term in v["contributions"]:  # an independent line carries its own value beside the one used
+                assert (term["log10_alone"] is None) == bool(set(term["rules"]) & JOINT_RULES or not term["rules"])
+                assert abs(term["log10_used"]) <= abs(term["log10_alone"] if term["log10_alone"] is not None
+                                                      else term["log10_used"]) + 1e-9
 
 
 def test_weigh_reaches_the_demo_scenario(weighed):
@@ -75,8 +124,11 @@ def test_weigh_json_is_byte_stable():
 def test_weigh_one_system_in_the_terminal():
     result = CliRunner().invoke(cli, ["weigh", str(DEMO), "--system", "wren-9"], env={"COLUMNS": "120"})
     assert result.exit_code == 0
-    assert "Pair AB (A + B): CO-MOVING" in result.output
-    assert "proper-motion-orbit" in result.output
+    assert "Pair AB (A + B): UNDETERMINED  P(physical) > 0.999999 (limit of the model)" in result.output
+    assert re.search(r"P\(bound \| physical\) = 0\.\d+", result.output)  # physical, binding open
+    assert "Terms of the verdict" in result.output and "(moved it most)" in result.output
+    row = next(line for line in result.output.splitlines() if "proper-motion-orbit" in line)
+    assert row.split("│")[3].strip() == "in the pair model"  # its standalone −99 is no term of the verdict
     assert "alder-4" not in result.output
 
 

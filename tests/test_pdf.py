@@ -40,6 +40,11 @@ def test_pdf_holds_the_system_its_verdicts_and_provenance(sites, system):
             assert re.search(rf"Pair {re.escape(pair)}\b.*?\b{re.escape(status)}\b", text, re.S), (pair, status)
     assert "Provenance" in text
     assert re.search(r"page 1 of \d+", text)
+    # the verdicts as computed: named probabilities, the limit of the model, the terms as used
+    assert "Terms of the verdict" in text and "moved it most" in text
+    assert re.search(r"P\(chance\s+alignment\)\s+>\s+0\.999999\s+\(limit\s+of\s+the\s+model\)|"
+                     r"P\(physical\)\s+>\s+0\.999999\s+\(limit\s+of\s+the\s+model\)", text)
+    assert "e-99" not in text
 
 
 @pytest.mark.parametrize("system", SYSTEMS)

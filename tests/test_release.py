@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import re
 import shutil
 import stat
 import subprocess
@@ -26,6 +27,7 @@ from dossier.release import (
 )
 from dossier.site import build
 from tests.conftest import DEMO, edit
+from tests.test_cli_end_to_end import JOINT_RULES
 
 # 2026-01-01T00:00:00Z as seconds since the Unix epoch (common practice: date -u -d 2026-01-01 +%s).
 NEW_YEAR_2026 = "1767225600"
@@ -254,7 +256,8 @@ def test_compare_reports_exactly_the_crafted_changes():
              "verdicts": {"AB": {"status": "bound", "probability": 0.995, "summary": ""}},
              "grades": {"C": {"grade": "doubtful", "reasons": ["Not seen."]}}}
     assert compare(before, after) == [
-        Change("s", "verdict", "AB", "undetermined (probability 0.600)", "bound (probability 0.9950)"),
+        # a state from before the pair model names no probability: it is named by its status
+        Change("s", "verdict", "AB", "undetermined (P(physical) = 0.60)", "bound (P(bound) = 0.9950)"),
         Change("s", "grade", "C", "candidate", "doubtful (Not seen.)"),
         Change("s", "source", "new", None, "New paper"),
         Change("s", "source", "old", "Old paper", None),
@@ -286,10 +289,17 @@ def test_diff_of_a_folder_reports_the_evidence_change_and_its_consequences(proje
          "-40.1 ± 0.03 mas/yr [sky-survey-3]"),
     ]
     verdicts = [c for c in changes if c["kind"] == "verdict"]
-    assert len(verdicts) == 1 and verdicts[0]["before"].startswith("optical")
+    assert len(verdicts) == 1 and verdicts[0]["before"].startswith("optical (P(chance alignment) ")
     assert not verdicts[0]["after"].startswith("optical")
-    assert {c["kind"] for c in changes} <= {"value", "verdict", "assessment", "derived"}
+    assert re.match(r"(bound|co-moving|undetermined) \(P\((bound|co-moving|physical)\) ", verdicts[0]["after"])
+    assert {c["kind"] for c in changes} <= {"value", "verdict", "term", "assessment", "derived"}
     assert {"parallax-agreement · AB", "common-motion · AB"} <= {c["key"] for c in changes if c["kind"] == "assessment"}
+    # the diagnostics of the pair model show no log10 of their own; the terms show the values as used
+    for c in changes:
+        if c["kind"] == "assessment" and c["key"].split(" · ")[0] in JOINT_RULES:
+            assert "weighed in the pair model" in c["after"] and "log10" not in c["after"]
+    terms = {c["key"]: c for c in changes if c["kind"] == "term"}
+    assert "AB · Parallaxes" in terms and "in log10 odds physical : chance alignment" in terms["AB · Parallaxes"]["after"]
 
 
 def test_diff_against_a_git_revision_in_markdown(project, tmp_path):

@@ -19,7 +19,7 @@ from dossier.serve import Server, Watcher, changed_paths, snapshot
 from tests.conftest import DEMO, edit
 
 WREN = "systems/wren-9/evidence.yaml"
-TITLE = "Two dwarfs sharing a motion, too far apart to be bound"
+TITLE = "Two dwarfs sharing a motion, bound only if one hides a companion"
 
 
 class Recorder:

@@ -14,7 +14,7 @@ from dossier.cli import cli
 from dossier.errors import DossierError
 from dossier.site import build, write_site
 from tests.conftest import DEMO, edit
-from tests.test_cli_end_to_end import EXPECTED
+from tests.test_cli_end_to_end import EXPECTED, PROBABILITY_OF
 
 
 @pytest.fixture(scope="module")
@@ -32,6 +32,7 @@ def test_every_system_page_shows_each_pairs_verdict(site):
         block = page[page.index(f'id="pair-{pair}"'):]
         block = block[: block.index("</article>")]
         assert f'<span class="status status-{status}">{status}</span>' in block
+        assert f'<span class="prob">{PROBABILITY_OF[status]}' in block  # named: of what it is the probability
 
 
 def test_index_lists_every_system_with_its_statuses(site):
@@ -149,11 +150,20 @@ def test_catalogue_exports_read_back_with_astropy(site):
         back = Table.read(site / name, format=fmt)
         assert back.colnames == written.colnames
         assert [str(x) for x in back["status"]] == [str(x) for x in written["status"]]
-        for col in ("probability", "rho", "distance"):
+        assert [str(x) for x in back["probability_of"]] == [str(x) for x in written["probability_of"]]
+        assert [bool(x) for x in back["limited_by_model"]] == [bool(x) for x in written["limited_by_model"]]
+        for col in ("probability", "p_bound", "p_comoving", "p_chance", "log10_odds_physical", "rho", "distance"):
+            # NaN where a verdict has none (heron-1 AC): equal as written, NaN included
             np.testing.assert_array_equal(np.asarray(back[col], dtype=float), np.asarray(written[col], dtype=float))
         assert str(back["rho"].unit) == "arcsec"
     statuses = {(str(r["system"]), str(r["pair"])): str(r["status"]) for r in written}
     assert statuses == EXPECTED
+    for r in written:
+        assert str(r["probability_of"]) == PROBABILITY_OF[str(r["status"])]
+        if np.isfinite(r["p_bound"]):  # the three hypotheses' probabilities sum to 1
+            assert abs(r["p_bound"] + r["p_comoving"] + r["p_chance"] - 1) < 1e-12
+    ac = next(r for r in written if (str(r["system"]), str(r["pair"])) == ("heron-1", "AC"))
+    assert np.isnan(ac["probability"]) and np.isnan(ac["log10_odds_physical"])  # nothing could be weighed
 
 
 def test_manifest_lists_inputs_and_outputs_and_verify_finds_edits(tmp_path):
@@ -216,3 +226,130 @@ def test_unchanged_systems_take_their_figures_from_the_cache(demo_copy, tmp_path
     assert "[from the cache]" in (tmp_path / "two/systems/heron-1/index.html").read_text()
     assert "[from the cache]" in (tmp_path / "two/systems/alder-4/index.html").read_text()
     assert "[from the cache]" not in (tmp_path / "two/systems/wren-9/index.html").read_text()  # its evidence changed
+
+
+# ----------------------------------------------------------------------------
+# The verdict as it was computed (the pair model and the terms of its odds)
+
+
+@pytest.fixture(scope="module")
+def weighed_demo():
+    from dossier.engine import weigh_project
+    from dossier.schema.loader import load_project
+
+    return weigh_project(load_project(DEMO))
+
+
+def _text(html: str) -> str:
+    import html as html_lib
+
+    return re.sub(r"\s+", " ", html_lib.unescape(re.sub(r"<[^>]+>", " ", html))).strip()
+
+
+def _rows(table_html: str) -> list[list[str]]:
+    """The cells of a table's body, as text."""
+    body = table_html[table_html.index("<tbody>"):]
+    return [[_text(cell) for cell in re.findall(r"<t[dh][^>]*>(.*?)</t[dh]>", row, re.S)]
+            for row in re.findall(r"<tr[^>]*>(.*?)</tr>", body, re.S)]
+
+
+def test_the_terms_shown_are_the_terms_the_verdict_used(site, weighed_demo):
+    from dossier.fmt import fmt_log10
+    from dossier.render.terms import ODDS
+
+    for sid, result in weighed_demo.items():
+        page = (site / "systems" / sid / "index.html").read_text()
+        for pid, v in result.verdicts.items():
+            if not v.contributions:
+                assert f'id="terms-{pid}"' not in page
+                continue
+            table = page[page.index(f'id="terms-{pid}"'):]
+            table = table[: table.index("</table>")]
+            shown = [(row[0].replace(" moved it most", ""), row[1], row[2]) for row in _rows(table)]
+            assert shown == [(c.line, ODDS[c.question], fmt_log10(c.log10, "−")) for c in v.contributions]
+            # the term that moved it most is marked, and the summary names it with its value as used
+            marked = [row[0] for row in _rows(table) if row[0].endswith(" moved it most")]
+            assert marked == [f"{v.moved_most} moved it most"]
+
+
+def test_no_page_shows_a_diagnostics_standalone_strength_as_a_term(site, weighed_demo):
+    from dossier.rules.verdict import JOINT_RULES, strongest
+
+    for sid, result in weighed_demo.items():
+        page = (site / "systems" / sid / "index.html").read_text()
+        for rule in JOINT_RULES:
+            section = page[page.index(f'id="rule-{rule}"'):]
+            section = section[: section.index("</section>")]
+            found = {a.subject: a for a in result.assessments if a.rule == rule}
+            for row in _rows(section):  # in place of its own strength, which the verdict does not use
+                assert row[2] == ("" if found[row[0]].strength is None else "weighed in the pair model"), (sid, rule, row)
+        # the summary names, for and against, only terms of the verdict, with their values as used
+        summary = page[page.index('class="verdict-summary"'):]
+        summary = summary[: summary.index("</table>")]
+        for row, pair in zip(_rows(summary), result.system.pairs):
+            v = result.verdicts[pair.id]
+            for cell, term in zip(row[3:], strongest(v.contributions, v.status)):
+                if term is None:
+                    assert cell == "none"
+                else:
+                    assert cell.startswith(f"{term.line} (") and "as used" in cell
+                    assert (term.log10 > 0) == ("(+" in cell)
+
+
+def test_every_verdict_probability_carries_its_label(site):
+    label = r"P\((bound|co-moving|chance alignment|physical)\)"
+    pages = [site / "index.html", *sorted(site.glob("systems/*/index.html")),
+             *sorted(site.glob("systems/*/releases/*/index.html"))]
+    seen = 0
+    for path in pages:
+        text = path.read_text()
+        for cell in re.findall(r'class="prob">(.*?)</(?:span|td)>', text, re.S):
+            assert re.match(label + r"( = 0\.\d+| [<>] 0\.999999 \(limit of the model\)| [<>] 0\.000001 "
+                                    r"\(limit of the model\)|: not computed)", _text(cell)), (path, cell)
+            seen += 1
+        assert '<span class="prob">probability' not in text, path  # the old unnamed "probability 0.9999"
+    assert seen >= 2 * 7 + 7  # the catalogue's rows, each pair's summary row and card, the releases' tables
+
+
+def test_probabilities_beyond_the_model_limit_read_as_the_limit(site, weighed_demo):
+    limited = 0
+    for sid, result in weighed_demo.items():
+        html = (site / "systems" / sid / "index.html").read_text()
+        page = _text(html)
+        # no probability written as 1e-99 or 2.7e-07, in the verdicts, the rules' quantities or the provenance
+        assert not re.search(r"P\([^)]*\)[^:]*: [\d.]+e-(0[7-9]|[1-9]\d)", page)
+        assert "e-99" not in page
+        for pid, v in result.verdicts.items():
+            card = html[html.index(f'id="pair-{pid}"'):]
+            card = card[: card.index("</article>")]
+            if v.probability is None:
+                assert 'class="probabilities"' not in card
+                continue
+            table = card[card.index('class="probabilities"'):]
+            table = table[: table.index("</table>")]
+            heads = [_text(h) for h in re.findall(r"<th[^>]*>(.*?)</th>", table, re.S)]
+            shown = dict(zip(heads, _rows(table)[0]))
+            for name, value in (("P(bound)", v.p_bound), ("P(co-moving)", v.p_comoving),
+                                ("P(chance alignment)", v.p_chance), ("P(physical)", v.p_physical),
+                                ("P(bound | physical)", v.p_bound_given_physical)):
+                if value >= 1 - 1e-6:
+                    assert shown[name] == "> 0.999999 (limit of the model)", (sid, pid, name)
+                    limited += 1
+                elif value <= 1e-6:
+                    assert shown[name] == "< 0.000001 (limit of the model)", (sid, pid, name)
+                else:
+                    assert re.fullmatch(r"0\.\d+", shown[name]), (sid, pid, name, shown[name])
+            head = _text(card[: card.index("</header>")])
+            if v.limited_by_model:
+                assert f"{v.status} {v.probability_of} > 0.999999 (limit of the model)" in head, head
+    assert limited >= 4  # heron-1 Ba-Bb and AD, alder-4 AB, wren-9 AB in the demo
+
+
+def test_the_methods_page_links_how_verdicts_are_computed(site):
+    methods = (site / "methods.html").read_text()
+    assert '<a href="verdicts.html">How verdicts are computed</a>' in methods
+    page = (site / "verdicts.html").read_text()
+    assert "<h1>How verdicts are computed</h1>" in page
+    assert "<table>" in page  # the Markdown tables of priors and statuses are rendered
+    system = (site / "systems/heron-1/index.html").read_text()
+    assert 'href="../../verdicts.html"' in system

@@ -6,7 +6,8 @@ import re
 from functools import lru_cache
 from pathlib import Path
 
-from dossier.fmt import fmt_number, fmt_probability
+from dossier.fmt import fmt_log10, fmt_number, fmt_probability
+from dossier.render.terms import labelled
 from dossier.rules.base import OUTCOME_WORDS
 
 PACKAGE_TEMPLATES = Path(__file__).resolve().parent.parent / "_templates"
@@ -21,10 +22,16 @@ def templates_dir() -> Path:
     raise FileNotFoundError("the page templates are missing from this installation; reinstall dossier")
 
 
-def fmt_quantity(q) -> str:
-    """'value ± uncertainty unit' or 'value (low–high) unit'."""
+def fmt_quantity(q, limit: float | None = None) -> str:
+    """'value ± uncertainty unit' or 'value (low–high) unit'.
+
+    A probability without an uncertainty ("P(bound) from this line alone") is written as the verdict's are:
+    with ``limit`` (the model's), nearer 0 or 1 than it reads as the limit of the model, never 1e-99.
+    """
     if q.value is None:
         return "—"
+    if limit is not None and q.label.startswith("P(") and not q.unit and q.uncertainty is None:
+        return fmt_probability(q.value, limit)
     text = fmt_number(q.value)
     if q.uncertainty is not None:
         text += f" ± {fmt_number(q.uncertainty, 2)}"
@@ -46,6 +53,21 @@ def is_web_url(url: object) -> bool:
     text only: a reference's ``url`` is free text from many hands.
     """
     return isinstance(url, str) and _WEB_URL.fullmatch(url) is not None
+
+
+_PROBABILITY_FIELD = re.compile(r"\.p_(bound|comoving|chance|physical|bound_given_physical)$")
+
+
+def fmt_derived(row, limit: float | None = None) -> str:
+    """A derived value of the provenance table: a probability as :func:`fmt_quantity` writes it."""
+    if row.value is None:
+        return "—"
+    if limit is not None and _PROBABILITY_FIELD.search(row.field) and not row.unit and row.uncertainty is None:
+        return fmt_probability(row.value, limit)
+    text = fmt_number(row.value)
+    if row.uncertainty is not None:
+        text += f" ± {fmt_number(row.uncertainty, 2)}"
+    return f"{text} {row.unit}"
 
 
 def fmt_strength(value: float | None) -> str:
@@ -75,9 +97,12 @@ def environment():
         keep_trailing_newline=True,
     )
     env.filters.update(
-        probability=fmt_probability,
+        probability=fmt_probability,  # {{ p | probability(model_limit) }}
+        labelled=labelled,  # {{ p | labelled("P(bound)", model_limit) }}
+        log10=lambda x: fmt_log10(x, minus="−"),
         number=fmt_number,
-        quantity=fmt_quantity,
+        quantity=fmt_quantity,  # {{ q | quantity(model_limit) }}
+        derived=fmt_derived,
         strength=fmt_strength,
         measured=fmt_measured,
         outcome_words=lambda o: OUTCOME_WORDS[o],
