@@ -82,3 +82,25 @@ def exchange(a: Path | str, b: Path | str) -> bool:
     if function is None:
         return False
     return function(_AT_FDCWD, os.fsencode(a), _AT_FDCWD, os.fsencode(b), _RENAME_EXCHANGE) == 0
+
+
+def swap_in(staging: Path | str, target: Path | str, aside: Path | str) -> Path | None:
+    """Put the finished folder ``staging`` at ``target``; return where the previous ``target`` now is (or None).
+
+    With an atomic exchange (``renameat2``) the previous folder ends up at ``staging``; without it, it is
+    renamed to ``aside`` first, and for the instant between the two renames ``target`` is absent. Removing
+    the returned folder is the caller's business.
+    """
+    staging, target, aside = Path(staging), Path(target), Path(aside)
+    if not os.path.lexists(target):
+        os.rename(staging, target)
+        return None
+    if exchange(staging, target):
+        return staging
+    os.rename(target, aside)
+    try:
+        os.rename(staging, target)
+    except BaseException:
+        os.rename(aside, target)
+        raise
+    return aside

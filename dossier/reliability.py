@@ -711,7 +711,7 @@ def write_report(folder: Path, report: dict) -> None:
     DossierError
         When ``folder`` is a file or a folder of other things.
     """
-    from dossier.durable import exchange, fsync_path, fsync_tree
+    from dossier.durable import fsync_path, fsync_tree, swap_in
     from dossier.render.html import templates_dir
 
     folder = Path(folder).resolve()
@@ -729,19 +729,8 @@ def write_report(folder: Path, report: dict) -> None:
         (staging / "index.html").write_text(render_page(report, figures), encoding="utf-8")
         fsync_tree(staging)
         _replaceable(folder)  # again: the folder may have changed while the report was written
-        if not os.path.lexists(folder):
-            os.rename(staging, folder)
-        elif exchange(staging, folder):
-            previous = staging
-        else:  # no atomic exchange here: for the instant between the two renames the folder is absent
-            previous = folder.with_name(f".{folder.name}.previous-{os.getpid()}-{secrets.token_hex(4)}")
-            os.rename(folder, previous)
-            try:
-                os.rename(staging, folder)
-            except BaseException:
-                os.rename(previous, folder)
-                previous = None
-                raise
+        previous = swap_in(staging, folder,
+                           folder.with_name(f".{folder.name}.previous-{os.getpid()}-{secrets.token_hex(4)}"))
         fsync_path(folder.parent, folder=True)
     finally:
         for leftover in (staging, previous):

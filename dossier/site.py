@@ -570,22 +570,9 @@ def _swap_in(staging: Path, out_dir: Path) -> Path | None:
     import os
     import secrets
 
-    from dossier.durable import exchange
+    from dossier.durable import swap_in
 
-    if not os.path.lexists(out_dir):
-        os.rename(staging, out_dir)
-        return None
-    if exchange(staging, out_dir):
-        return staging
-    # The fallback: for the instant between these two renames, out_dir is absent.
-    aside = out_dir.with_name(f"{_staging_prefix(out_dir)}{os.getpid()}-{secrets.token_hex(4)}")
-    os.rename(out_dir, aside)
-    try:
-        os.rename(staging, out_dir)
-    except BaseException:
-        os.rename(aside, out_dir)
-        raise
-    return aside
+    return swap_in(staging, out_dir, out_dir.with_name(f"{_staging_prefix(out_dir)}{os.getpid()}-{secrets.token_hex(4)}"))
 
 
 def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, str] | None = None) -> None:

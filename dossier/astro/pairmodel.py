@@ -312,10 +312,6 @@ def _logpdf3(x, c):
     return -0.5 * q - 0.5 * np.log(det) - 1.5 * math.log(2 * math.pi)
 
 
-def _logsumexp(a: NDArray, axis: int) -> NDArray:
-    return _lse(a, axis)
-
-
 # ----------------------------------------------------------------------------
 # Geometry
 
@@ -486,7 +482,7 @@ def _block(c, err, rho, sigma_field, mass, mass_ln_err, settings, L, J) -> dict[
 
     # separation priors at the physical distance nodes: per arcsec of ρ, per star
     s_au = rho[:, None] * d_bar * 1000.0                      # (m, J)
-    xi, ut, ur = orbit_table()
+    _, ut, ur = orbit_table()
     rate_b, log_dens_b, log_dens_c = _separation_priors(s_au, d_bar, settings)
     dens_f = 2 * np.pi * rho * sigma_field / ARCSEC_PER_DEG2  # per arcsec
     # ... and at the median distance, for the terms reported
@@ -593,8 +589,8 @@ def _block(c, err, rho, sigma_field, mass, mass_ln_err, settings, L, J) -> dict[
         outlier = math.log(eps) + gaussian_difference(field_var, field_var)
         lb.append(outlier)
         lc.append(outlier)
-        log_dv_b = _logsumexp(np.stack(lb), axis=0)
-        log_dv_c = _logsumexp(np.stack(lc), axis=0)
+        log_dv_b = _lse(np.stack(lb), axis=0)
+        log_dv_c = _lse(np.stack(lc), axis=0)
         diag["dvt"] = np.median(dvt, axis=1)
         diag["dvr"] = np.where(both_rv, np.median(dvr, axis=1), np.nan)
         diag["sig"] = np.median(np.sqrt(0.5 * (ct00 + ct11)), axis=1)
@@ -606,10 +602,10 @@ def _block(c, err, rho, sigma_field, mass, mass_ln_err, settings, L, J) -> dict[
 
     # --- assemble: average over the distance nodes (equal-probability points of each posterior) -----
     logJ = math.log(J)
-    log_bound = phys_common + _logsumexp(log_dens_b + v_field_phys + log_dv_b, axis=1) - logJ
-    log_comoving = phys_common + _logsumexp(log_dens_c + v_field_phys + log_dv_c, axis=1) - logJ
-    log_chance = (np.log(dens_f) + log_m1 + _logsumexp(v_field_1, axis=1) - logJ
-                  + log_m2 + _logsumexp(v_field_2, axis=1) - logJ)
+    log_bound = phys_common + _lse(log_dens_b + v_field_phys + log_dv_b, axis=1) - logJ
+    log_comoving = phys_common + _lse(log_dens_c + v_field_phys + log_dv_c, axis=1) - logJ
+    log_chance = (np.log(dens_f) + log_m1 + _lse(v_field_1, axis=1) - logJ
+                  + log_m2 + _lse(v_field_2, axis=1) - logJ)
     # contributions as used: separation prior at the median distance, parallaxes, and the rest
     prior = np.logaddexp(log_dens_b_med[:, 0], log_dens_c_med[:, 0]) - np.log(dens_f)
     log_phys = np.logaddexp(log_bound, log_comoving)
@@ -661,7 +657,7 @@ def _log_field(v, B, kd, C_pm, var_rv, rv_ok, weights, means, covs) -> NDArray:
         l3 = _logpdf3(x, cov)
         l2 = _logpdf2(x[..., 0], x[..., 1], cov[..., 0, 0], cov[..., 0, 1], cov[..., 1, 1])
         out.append(math.log(w) + np.where(rv_ok[:, None], l3, l2))
-    return _logsumexp(np.stack(out), axis=0)
+    return _lse(np.stack(out), axis=0)
 
 
 def _orbit_log_weights(rate: NDArray) -> NDArray:

@@ -128,7 +128,7 @@ def combine_arrays(model: Model, association: np.ndarray, binding: np.ndarray, o
     add_o = used["orbit"].sum(axis=1) * LN10
     lb = model.log_bound + add_a + add_b + add_o
     lc = model.log_comoving + add_a
-    lf = np.asarray(model.log_chance, float) + 0.0
+    lf = np.asarray(model.log_chance, float)
     has = np.isfinite(lf) & (np.isfinite(lb) | np.isfinite(lc))
     logs = np.stack([lb, lc, lf])
     top = np.max(np.where(np.isfinite(logs), logs, -np.inf), axis=0)
