@@ -12,6 +12,7 @@ renamed into place.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import os
@@ -24,6 +25,20 @@ from dossier import __version__
 CACHE_DIR = ".dossier-cache"
 
 
+@functools.lru_cache(maxsize=1)
+def code_hash() -> str:
+    """SHA-256 of Dossier's own source: a cached result is reused only by the code that computed it.
+
+    The version number alone is not enough: between two releases, a change to a
+    sampler or a gate must not meet results of the code before it.
+    """
+    package = Path(__file__).resolve().parent
+    digest = hashlib.sha256()
+    for path in sorted(package.rglob("*.py")):
+        digest.update(path.relative_to(package).as_posix().encode() + b"\0" + path.read_bytes())
+    return digest.hexdigest()
+
+
 class Cache:
     """JSON results by key, in one folder; ``Cache(None)`` caches nothing."""
 
@@ -32,7 +47,8 @@ class Cache:
 
     @staticmethod
     def key(kind: str, inputs: Any) -> str:
-        text = json.dumps({"kind": kind, "version": __version__, "inputs": inputs}, sort_keys=True, default=repr)
+        text = json.dumps({"kind": kind, "version": __version__, "code": code_hash(), "inputs": inputs},
+                          sort_keys=True, default=repr)
         return f"{kind}-{hashlib.sha256(text.encode()).hexdigest()[:32]}"
 
     def get_or_compute(self, kind: str, inputs: Any, compute: Callable[[], dict]) -> dict:

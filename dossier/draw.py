@@ -109,12 +109,9 @@ def draw_system(result: SystemResult) -> list[Figure]:
     return figures
 
 
-CURVATURE_P = 1e-3
-"""p-value of the curvature test below which a log's path is drawn (and described) as curved."""
-
-
-def _curved(log) -> bool:
-    return log.curvature is not None and log.curvature.p_value < CURVATURE_P
+def _curved(result: SystemResult, log) -> bool:
+    """Is the path drawn (and described) as curved: the one threshold the rules use, ``[log] curvature_p``."""
+    return log.is_curved(result.facts.settings.log.curvature_p)
 
 
 def _log_models(result: SystemResult, pair_id: str, log) -> list[tuple[str, str, np.ndarray, np.ndarray, np.ndarray]]:
@@ -128,7 +125,7 @@ def _log_models(result: SystemResult, pair_id: str, log) -> list[tuple[str, str,
     if log.linear is not None:
         x, y, _, _ = log.linear.predict(t)
         models.append(("straight line (as an optical pair moves)", "linear", t, x, y))
-    if log.quadratic is not None and _curved(log):
+    if log.quadratic is not None and _curved(result, log):
         x, y, _, _ = log.quadratic.predict(t)
         models.append(("quadratic (curved path)", "quadratic", t, x, y))
     orbit = result.facts.visual_orbit(pair_id)
@@ -179,8 +176,8 @@ def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
     sid = result.system.id
     p_curvature = log.curvature.p_value if log.curvature is not None else None
     path_alt = alt.relative_path(sid, pair_id, first, second, series, curves, p_curvature=p_curvature,
-                                 curved=_curved(log))
-    motion_alt = alt.motion(sid, pair_id, series, p_curvature=p_curvature, curved=_curved(log),
+                                 curved=_curved(result, log))
+    motion_alt = alt.motion(sid, pair_id, series, p_curvature=p_curvature, curved=_curved(result, log),
                             residual_model=residual)
     return [
         Figure(f"orbit-{pair_id}", f"Relative path of {pair_id}",
@@ -198,6 +195,56 @@ def draw_log(result: SystemResult, pair_id: str) -> list[Figure]:
     ]
 
 
+EPHEMERIS_YEARS = 30.0
+"""Years after a pair's latest measure that its ephemeris chart and table cover."""
+
+
+def ephemeris_span(result: SystemResult, pair_id: str) -> tuple[float, float]:
+    """(start, end) in Julian years of a pair's ephemeris: from its latest measure (else the system's) onwards.
+
+    Built from the evidence alone, never from the clock, so that a rebuild is
+    byte for byte the same.
+    """
+    log = result.facts.logs.get(pair_id)
+    if log is not None and len(log.t):
+        start = float(log.t.max())
+    else:
+        seen = [float(lg.t.max()) for lg in result.facts.logs.values() if len(lg.t)]
+        start = max(seen) if seen else 2000.0
+    return start, start + EPHEMERIS_YEARS
+
+
+def draw_ephemeris(result: SystemResult, pair_id: str) -> list[Figure]:
+    """Predicted θ and ρ of one pair for the years after its latest measure, with 68 % and 95 % bands."""
+    from dossier.ephemerides import describe, predict
+    from dossier.figures import alt
+    from dossier.figures.ephemeris_chart import ephemeris_chart
+
+    posterior = result.facts.ephemeris_posterior(pair_id)
+    if posterior is None:
+        return []
+    start, end = ephemeris_span(result, pair_id)
+    log = result.facts.logs.get(pair_id)
+    measures = []
+    first = start - 10.0
+    if log is not None:
+        keep = (~log.flagged) & (log.t >= start - 10.0)
+        measures = [(float(t), float(th), float(r), float(st), float(sr)) for t, th, r, st, sr in
+                    zip(log.t[keep], log.theta[keep], log.rho[keep], log.sigma_theta[keep], log.sigma_rho[keep])]
+        first = min([first, *(m[0] for m in measures)])
+    prediction = predict(posterior, np.linspace(first, end, 241))
+    sid = result.system.id
+    source = describe(posterior)
+    text = alt.ephemeris(sid, pair_id, prediction, source=source, start=start)
+    return [Figure(f"ephemeris-{pair_id}", f"Predicted position of {pair_id}",
+                   f"θ and ρ predicted from the {source} for {EPHEMERIS_YEARS:.0f} years after the latest measure: "
+                   "the line is the median of the sampled orbits, the bands hold 68 % and 95 % of them; the "
+                   "unflagged measures of the last ten years are drawn with their 1σ errors.",
+                   ephemeris_chart(prediction, measures, title=f"{sid} {pair_id}: predicted position", source=source,
+                                   latest=start, alt=text),
+                   text)]
+
+
 def draw_spectroscopic(result: SystemResult, pair_id: str) -> list[Figure]:
     """RV curve with the fitted orbit and residuals, and the periodogram, of one pair's primary."""
     from dossier.astro import spectro
@@ -207,23 +254,27 @@ def draw_spectroscopic(result: SystemResult, pair_id: str) -> list[Figure]:
     orbit = result.facts.rv_orbits.get(pair_id)
     if orbit is None:
         return []
-    points = [RVPoint(float(t) - 2400000.0, float(v), float(s), inst or None, ref or None)
-              for t, v, s, inst, ref in zip(orbit.jd, orbit.v, orbit.sigma, orbit.instruments, orbit.refs)]
+    # each instrument's fitted zero point is moved onto the reference instrument's before plotting
+    shift = orbit.offsets() if orbit.detected else np.zeros(len(orbit.v))
+    points = [RVPoint(float(t) - 2400000.0, float(v - d), float(s), inst or None, ref or None)
+              for t, v, d, s, inst, ref in zip(orbit.jd, orbit.v, shift, orbit.sigma, orbit.instruments, orbit.refs)]
     model = None
     elements = {}
     if orbit.fit is not None and orbit.detected:
         f = orbit.fit
         t = np.linspace(orbit.jd.min() - 0.05 * np.ptp(orbit.jd), orbit.jd.max() + 0.05 * np.ptp(orbit.jd), 1500)
-        v = spectro.rv_model(t, f.P, f.K, f.e, f.omega, f.T, f.gamma)
+        v = spectro.rv_model(t, f.P, f.K, f.e, f.omega, f.T, f.gamma[orbit.reference_instrument])
         model = RVModel(tuple(map(float, t - 2400000.0)), tuple(map(float, v)), "fitted Keplerian orbit",
                         float(f.P), float(f.T) - 2400000.0)
+        # best fit ± the posterior's 68 % half-width
         elements = {"period": (float(f.P), float(f.sigma_P)), "semi_amplitude": (float(f.K), float(f.sigma_K))}
     sid = result.system.id
     rv_alt = alt.rv_chart(sid, pair_id, orbit.star, points, period=elements.get("period"),
                           semi_amplitude=elements.get("semi_amplitude"))
     figures = [Figure(f"rv-{pair_id}", f"Radial velocities of {orbit.star}",
                       f"Velocities of {orbit.star} against time and folded on the fitted period, with the Keplerian "
-                      "orbit and the residuals; markers by instrument and source.",
+                      "orbit and the residuals; markers by instrument and source; each instrument's fitted zero "
+                      "point is moved onto that of the instrument with most velocities.",
                       rv_chart(points, model, title=f"{sid} {orbit.star}: radial velocities", alt=rv_alt),
                       rv_alt)]
     if orbit.periodogram is not None:

@@ -63,3 +63,16 @@ def fmt_log10(value: float | None, minus: str = "-") -> str:
     size = abs(value)
     text = f"{value:+.2f}" if size < 100 else f"{value:+.1f}" if size < 1000 else f"{value:+.0f}"
     return text.replace("-", minus)
+
+
+def fmt_interval(value: float, low: float, high: float) -> str:
+    """A value with its interval at the precision the interval sets: '104.7 (101.3 to 108.2)'.
+
+    The decimals give the narrower half-width two significant figures (common practice for quoting
+    an uncertainty), at most six; '—' for a value that is not finite.
+    """
+    if not all(math.isfinite(v) for v in (value, low, high)):
+        return fmt_number(value) if math.isfinite(value) else "—"
+    half = min(abs(value - low), abs(high - value))
+    decimals = 6 if half <= 0 else min(6, max(0, 1 - int(math.floor(math.log10(half)))))
+    return f"{value:.{decimals}f} ({low:.{decimals}f} to {high:.{decimals}f})"

@@ -1,13 +1,21 @@
 """``dossier plan``: which pairs most need a measure tonight, and when each can be observed.
 
 Priority
-    The expected change of a pair's relative position since its last
-    measure: years since then times the rate of change of θ and ρ (from the
-    published orbit when there is one, else from the motion fitted to the
-    log, else from the members' relative proper motion). It is expressed in
-    units of a typical good measure (``theta_step_deg`` in θ and
-    ``rho_step_fraction`` of ρ; defaults 0.5° and 1 %, common practice) and
-    the larger of the two is the score. A pair never measured comes first.
+    How far the pair may be from where we would otherwise assume, in units
+    of a typical good measure (``theta_step_deg`` in θ and
+    ``rho_step_fraction`` of ρ; defaults 0.5° and 1 %, common practice).
+    When the pair has an orbit posterior (fitted to the log, or drawn about
+    a published orbit's stated uncertainties; :mod:`dossier.ephemerides`)
+    the score is the spread of the predicted positions tonight over that
+    measure size: a measure tells most where the orbits still allowed by the
+    data disagree most. The plan also says when the pair is best resolved
+    (largest predicted separation in the next 20 years) and when one measure
+    would narrow the period's posterior most
+    (:func:`dossier.ephemerides.period_gain`). Without a posterior the score is the expected change of
+    the relative position since the last measure: years since then times the
+    rate of change of θ and ρ (from the motion fitted to the log, else from
+    the members' relative proper motion), the larger of the two. A pair
+    never measured comes first.
 
 Window
     The times of the night when the pair is above ``min_altitude_deg`` while
@@ -123,6 +131,9 @@ class Target:
     score: float
     reason: str
     window: Window | None = None
+    best_resolved: float | None = None
+    best_resolved_rho: float | None = None
+    most_informative: float | None = None
 
 
 def score_pair(now_yr: float, last_yr: float | None, rho: float | None, theta_rate: float | None,
@@ -184,8 +195,24 @@ def plan(results: dict, site: Site, date: dt.date, *, min_altitude_deg: float = 
             if rho is None and last is None:
                 continue  # nothing known of where to look
             score, reason = score_pair(now_yr, last, rho, theta_rate, rho_rate)
+            extra = {}
+            posterior = result.facts.ephemeris_posterior(pair.id)
+            if posterior is not None:
+                from dossier.ephemerides import describe, outlook
+
+                look = outlook(posterior, now_yr)
+                rho = float(look.prediction.rho[2][0])
+                score = look.spread_over_measure
+                gain = look.period_gain
+                reason = (f"predicted positions spread over {look.prediction.spread[0]:.3g}″ tonight, "
+                          f"{score:.1f} times a good measure; a measure now would narrow ln P's variance by "
+                          f"{100 * gain[0]:.0f} %, most ({100 * gain.max():.0f} %) around {look.most_informative:.0f}; "
+                          f"widest in {look.best_resolved:.0f} (ρ = {look.best_resolved_rho:.2f}″)")
+                source = describe(posterior)
+                extra = {"best_resolved": look.best_resolved, "best_resolved_rho": look.best_resolved_rho,
+                         "most_informative": look.most_informative}
             targets.append(Target(sid, pair.id, last, None if last is None else now_yr - last, theta_rate, rho_rate,
-                                  rho, score, f"{reason} ({source})"))
+                                  rho, score, f"{reason} ({source})", **extra))
     targets.sort(key=lambda t: (-t.score, t.system, t.pair))
     targets = targets[:limit]
     if targets:

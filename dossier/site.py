@@ -20,6 +20,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from dossier import __version__
+from dossier.cache import code_hash
 from dossier.errors import DossierError
 from dossier.render.html import render_page, templates_dir
 from dossier.render.catalogue import search_index_js, system_row
@@ -154,6 +155,9 @@ class LogSection:
     pair: str
     log: object
     figures: list[Figure]
+    ephemeris: list | None = None
+    outlook: object | None = None
+    ephemeris_source: str | None = None
 
 
 def _release_pages(project: Project, sid: str, result: SystemResult, history: list, common: dict
@@ -207,6 +211,18 @@ def _common(settings) -> dict:
             "model_limit": limit, "model_limit_text": f"{limit:.15f}".rstrip("0")}
 
 
+def _log_section(result: SystemResult, pid: str, log, figures: list[Figure]) -> LogSection:
+    """A pair's log section, with its ephemeris table where the pair has an orbit posterior."""
+    from dossier.draw import EPHEMERIS_YEARS, ephemeris_span
+    from dossier.ephemerides import describe, table
+
+    posterior = result.facts.ephemeris_posterior(pid)
+    if posterior is None:
+        return LogSection(pid, log, figures)
+    rows, look = table(posterior, ephemeris_span(result, pid)[0], EPHEMERIS_YEARS)
+    return LogSection(pid, log, figures, rows, look, describe(posterior))
+
+
 def system_unit(project: Project, result: SystemResult, drawn: dict, releases: list, pdf: bool) -> dict:
     """Everything the site shows of one system, as JSON data that the cache keeps between builds.
 
@@ -229,7 +245,7 @@ def system_unit(project: Project, result: SystemResult, drawn: dict, releases: l
     common = _common(project.settings)
     pages, history = _release_pages(project, sid, result, releases, common)
     figures, claim_figures, star_figures = drawn["system"], drawn["claims"], drawn["stars"]
-    logs = [LogSection(pid, log, drawn["logs"][pid]) for pid, log in result.facts.logs.items()]
+    logs = [_log_section(result, pid, log, drawn["logs"][pid]) for pid, log in result.facts.logs.items()]
     log_file = project.root / "systems" / sid / "log.csv"
     pages[f"systems/{sid}/index.html"] = render_page(
         "system.html",
@@ -635,18 +651,6 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
     _remove_abandoned(out_dir)
 
 
-@functools.lru_cache(maxsize=1)
-def _code_hash() -> str:
-    """SHA-256 of Dossier's own source: a cached figure is reused only by the code that drew it."""
-    import hashlib
-
-    package = Path(__file__).resolve().parent
-    digest = hashlib.sha256()
-    for path in sorted(package.rglob("*.py")):
-        digest.update(path.relative_to(package).as_posix().encode() + b"\0" + path.read_bytes())
-    return digest.hexdigest()
-
-
 def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
     """Every figure of one system's page: ``system``, ``claims``, ``stars`` (lists) and ``logs`` (by pair).
 
@@ -660,6 +664,7 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
     from dossier.draw import (
         Figure,
         draw_detections,
+        draw_ephemeris,
         draw_log,
         draw_neighbours,
         draw_spectroscopic,
@@ -673,7 +678,8 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
             "system": [asdict(f) for f in draw_system(result)],
             "claims": [asdict(f) for f in draw_detections(result) + [
                 f for pid in result.facts.rv_orbits for f in draw_spectroscopic(result, pid)]],
-            "logs": {pid: [asdict(f) for f in draw_log(result, pid)] for pid in result.facts.logs},
+            "logs": {pid: [asdict(f) for f in draw_log(result, pid) + draw_ephemeris(result, pid)]
+                     for pid in result.facts.logs},
             "stars": [asdict(f) for f in draw_stars(result) + draw_neighbours(result)],
         }
 
@@ -681,7 +687,7 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
     if cache is None:
         data = compute()
     else:
-        key = {"evidence": content_hash(evidence_files(project.root, sid)), "code": _code_hash()}
+        key = {"evidence": content_hash(evidence_files(project.root, sid)), "code": code_hash()}
         data = cache.get_or_compute(f"figures-{sid}", key, compute)
     as_figures = lambda items: [Figure(**item) for item in items]  # noqa: E731
     return {"system": as_figures(data["system"]), "claims": as_figures(data["claims"]),
@@ -691,7 +697,8 @@ def draw_figures(project: Project, result: SystemResult, cache=None) -> dict:
 #: A site built from cached units must equal one built afresh; bump when :func:`system_unit` changes shape.
 UNIT_FORMAT = 2
 #: Libraries whose versions can change a page, a figure or a number: part of every cache key of a build.
-OUTPUT_PACKAGES = ("numpy", "scipy", "astropy", "pyerfa", "matplotlib", "jinja2", "markdown-it-py", "pydantic")
+OUTPUT_PACKAGES = ("numpy", "scipy", "astropy", "pyerfa", "matplotlib", "jinja2", "markdown-it-py", "pydantic",
+                   "emcee")
 #: Below this many systems to weigh, draw and render, a build stays in one process (a worker takes seconds to start).
 PARALLEL_MIN = 8
 
@@ -703,7 +710,7 @@ def _output_code_hash() -> str:
     import hashlib
     from importlib.metadata import PackageNotFoundError, version
 
-    digest = hashlib.sha256(_code_hash().encode())
+    digest = hashlib.sha256(code_hash().encode())
     base = templates_dir()
     for path in sorted(p for p in base.rglob("*") if p.is_file()):
         digest.update(path.relative_to(base).as_posix().encode() + b"\0" + hashlib.sha256(path.read_bytes()).digest())

@@ -180,7 +180,8 @@ def test_layout_fits_the_screen_and_screenshots_are_saved(browser, site, width, 
 def test_system_page_renders_its_figures(page, site):
     page.goto((site / "systems/heron-1/index.html").as_uri())
     assert page.locator("#figures figure svg").count() == 2
-    assert page.locator("#log figure svg").count() == 4  # relative path and θ, ρ for AB and Ba-Bb
+    # relative path and θ, ρ for AB and Ba-Bb, and the ephemeris of Ba-Bb (the pair with an orbit)
+    assert page.locator("#log figure svg").count() == 5
     box = page.locator("#figure-sky-chart svg").bounding_box()
     assert box is not None and box["width"] > 300 and box["height"] > 200
     assert page.locator(".verdict").count() == 5

@@ -44,9 +44,10 @@ def test_index_lists_every_system_with_its_statuses(site):
 
 def test_pages_carry_figures_sources_and_assumptions(site):
     page = (site / "systems/heron-1/index.html").read_text()
-    # sky chart, parallaxes, two figures for each of the two logged pairs, the detection map, the RV curve,
-    # the periodogram, the HR diagram and the neighbours' motions
-    assert page.count("<svg") == 11
+    # sky chart, parallaxes, two figures for each of the two logged pairs and the ephemeris of Ba-Bb (the
+    # one with an orbit), the detection map, the RV curve, the periodogram, the HR diagram and the
+    # neighbours' motions
+    assert page.count("<svg") == 12
     assert "heron-1: sky chart" in page and "heron-1: parallaxes" in page
     assert "https://doi.org/10.99999/demo.survey.2" in page
     assert "<code>length_scale_kpc</code></td><td>1.35" in page
@@ -106,7 +107,12 @@ def test_observing_log_section_shows_figures_measures_and_flags(site):
     section = page[page.index('id="log-Ba-Bb"'):]
     section = section[: section.index("</section>")]
     assert 'id="figure-orbit-Ba-Bb"' in section and 'id="figure-motion-Ba-Bb"' in section
-    assert section.count("<tr") - 1 == 42  # every measure of the log, flagged ones included
+    log_table = section[section.index('class="log-table"'):]
+    assert log_table.count("<tr") - 1 == 42  # every measure of the log, flagged ones included
+    # the ephemeris of its published orbit: a figure, and a row every 5 years for 30 years
+    assert 'id="figure-ephemeris-Ba-Bb"' in section
+    ephemeris = section[section.index('class="ephemeris-table"'):section.index('class="log-table"')]
+    assert ephemeris.count("<tr") - 1 == 7
     assert section.count('class="flagged"') == 1
     assert "from the published orbit" in section
     # the optical pair's page shows its straight-line motion

@@ -258,6 +258,24 @@ def motion(subject: str, pair: str, series: MotionSeries, *, p_curvature: float 
     return plain(text)
 
 
+def ephemeris(subject: str, pair: str, prediction, *, source: str, start: float) -> str:
+    """Ephemeris chart: the predicted θ and ρ at the start and end of the span, with their 68 % intervals.
+
+    ``prediction`` is a :class:`dossier.ephemerides.Prediction`; ``start``
+    is the epoch from which the coming years are described.
+    """
+    k0 = int(np.searchsorted(prediction.t, start))
+    k0 = min(k0, len(prediction.t) - 1)
+    parts = []
+    for k in (k0, len(prediction.t) - 1):
+        th, rh = prediction.theta[:, k], prediction.rho[:, k]
+        parts.append(f"in {_year(float(prediction.t[k]))} θ = {th[2] % 360:.1f}° ({th[1] % 360:.1f}° to "
+                     f"{th[3] % 360:.1f}°) and ρ = {_arcsec(float(rh[2]))} ({_arcsec(float(rh[1]))} to "
+                     f"{_arcsec(float(rh[3]))})")
+    return plain(f"Predicted position of {subject} pair {pair} from the {source}, with the central 68 % of "
+                 f"{prediction.samples} sampled orbits: {parts[0]}; {parts[1]}.")
+
+
 # --- radial velocities and claims ----------------------------------------------------------
 
 

@@ -13,6 +13,8 @@ import json
 import re
 from typing import Any
 
+import numpy as np
+
 #: Claim grades that settle a claim; the others count as open.
 SETTLED_GRADES = ("confirmed", "refuted")
 
@@ -25,6 +27,31 @@ def last_observed(result) -> tuple[float, str] | None:
             if latest is None or float(t) > latest[0]:
                 latest = (float(t), str(measure.epoch))
     return latest
+
+
+def latest_o_minus_c(result) -> dict[str, Any] | None:
+    """The largest O−C of a pair's latest unflagged measure against its orbit posterior, in σ (None without one).
+
+    σ combines the measure's uncertainty with the spread of the prediction
+    (:func:`dossier.ephemerides.o_minus_c`): a large value says the orbit no
+    longer describes the pair, or the measure is wrong.
+    """
+    from dossier.ephemerides import o_minus_c
+
+    worst = None
+    for pid, log in result.facts.logs.items():
+        posterior = result.facts.ephemeris_posterior(pid)
+        keep = ~log.flagged
+        if posterior is None or not keep.any():
+            continue
+        k = int(np.flatnonzero(keep)[np.argmax(log.t[keep])])
+        d_theta, d_rho, z = o_minus_c(posterior, log.t[k:k + 1], log.rho[k:k + 1], log.theta[k:k + 1],
+                                      log.sigma_rho[k:k + 1], log.sigma_theta[k:k + 1])
+        row = {"pair": pid, "z": round(float(z[0]), 2), "d_theta": float(d_theta[0]), "d_rho": float(d_rho[0]),
+               "epoch": str(log.measures[k].epoch)}
+        if worst is None or row["z"] > worst["z"]:
+            worst = row
+    return worst
 
 
 def system_row(result, history: dict[str, Any]) -> dict[str, Any]:
@@ -44,6 +71,7 @@ def system_row(result, history: dict[str, Any]) -> dict[str, Any]:
         "last_observed_year": round(seen[0], 4) if seen else None,
         "latest_release": releases[-1] if releases else None,
         "open_claims": [a.subject for a in grades if a.grade not in SETTLED_GRADES],
+        "o_minus_c": latest_o_minus_c(result),
     }
 
 

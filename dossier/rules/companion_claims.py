@@ -8,11 +8,37 @@ Method
     (from the spectroscopic-orbit rule's inputs), one detection per source.
     Detections from different sources count as independent confirmations
     (different teams, instruments or epochs). A search that found nothing
-    (``non_detections``) should have seen the companion when the claimed
-    separation lies in the searched range and the claimed Δm is within the
-    search's contrast, with a margin of ``band_margin`` magnitudes when the
-    bands differ (a companion's Δm changes with wavelength; common
-    practice). Two imaging detections at different epochs are checked for a
+    (``non_detections``) should have seen the companion when the
+    probability that it could have, P = P(inside) × P(bright enough),
+    reaches ``detect_probability`` (0.9 by default); the reasons give P.
+
+    P(inside): the companion moves between the claim and the search. Orbits
+    are drawn that pass through the claimed separation at the claim epoch
+    (random orientation, thermal eccentricity f(e) = 2e, random phase; the
+    semimajor axis scaled so that the projected separation matches the
+    claim, the scale-and-rotate idea of OFTI, Blunt et al. 2017, AJ 153,
+    229, without its rejection step: one epoch constrains nothing more),
+    their periods from Kepler's third law with the host's mass (plus the
+    companion's when known) and the host's parallax, and advanced to the
+    search epoch; P(inside) is the fraction inside the searched range.
+    Without a mass or parallax the companion is taken not to move (said so).
+
+    P(bright enough): the claimed Δm, drawn from its uncertainty, is
+    converted to the search's band when the bands differ: the companion's
+    zero-age main-sequence mass is found whose blackbody contrast with the
+    host matches the claim at the claim band's effective wavelength (Tout et
+    al. 1996, MNRAS 281, 257 for L and R; T_eff from L = 4πR²σT⁴; Planck's
+    law; host T_eff and R from the evidence, else from its mass on the main
+    sequence), and the contrast at the search band's wavelength follows
+    (:func:`dossier.astro.hierarchy.band_delta_mag`; wavelengths of
+    Bessell, Castelli & Plez 1998, A&A 333, 231). Blackbodies are an
+    approximation: ``colour_model_sigma`` (0.3 mag) is added. Without the
+    band wavelengths or the host's temperature, Δm is carried over with
+    ``unknown_band_sigma`` (1 mag) more uncertainty. P(bright enough) is
+    the fraction of draws with Δm ≤ the search's contrast. The draws are
+    seeded by a hash of their inputs.
+
+    Two imaging detections at different epochs are checked for a
     motion possible in a bound orbit: the displacement rate must not exceed
     the escape speed at that separation for twice the host's mass (a
     generous total mass; Kepler's third law).
@@ -41,14 +67,25 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
 from pydantic import Field
 
+from dossier.astro import binary, hierarchy
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts, julian_years
 
 
 class Settings(RuleSettings):
-    band_margin: float = Field(default=1.0, ge=0, description="Δm margin (mag) when claim and search bands differ.")
+    detect_probability: float = Field(default=0.9, gt=0, lt=1, description=(
+        "Probability of detection from which a search that found nothing counts as one that should have seen the "
+        "companion."))
+    samples: int = Field(default=4000, ge=500, le=1_000_000, description="Monte Carlo draws per claim and search.")
+    colour_model_sigma: float = Field(default=0.3, ge=0, description=(
+        "Uncertainty (mag) of the blackbody conversion of Δm between bands."))
+    unknown_band_sigma: float = Field(default=1.0, ge=0, description=(
+        "Extra uncertainty (mag) of Δm when the bands differ and cannot be converted."))
+    band_wavelengths_um: dict[str, float] = Field(default_factory=dict, description=(
+        "Effective wavelengths (µm) of bands beyond UBVRIJHKL (or replacing them)."))
     mass_factor: float = Field(default=2.0, ge=1, description="Total mass allowed, in units of the host's mass.")
 
 
@@ -97,6 +134,87 @@ def detections(facts: SystemFacts, companion: str) -> list[Detection]:
     return imaging + _spectroscopic(facts, companion)
 
 
+def _draw(rng: np.random.Generator, value: float, sigma: float | None, n: int, positive: bool = False) -> np.ndarray:
+    x = rng.normal(value, sigma or 0.0, n)
+    return np.where(x > 0, x, value) if positive else x
+
+
+def _host_star(facts: SystemFacts, host: str | None, rng: np.random.Generator, n: int):
+    """Draws of the host's T_eff (K) and R (R☉) and how they were obtained, or None."""
+    comp = facts.system.components.get(host) if host is not None else None
+    phys = comp.physical if comp is not None else None
+    if phys is None:
+        return None
+    if phys.teff is not None and phys.radius is not None:
+        return (_draw(rng, phys.teff.value, phys.teff.uncertainty, n, True),
+                _draw(rng, phys.radius.value, phys.radius.uncertainty, n, True), "the host's T_eff and R")
+    if phys.mass is not None and phys.stage in (None, "main-sequence"):
+        t, r = hierarchy.zams_teff_radius(_draw(rng, phys.mass.value, phys.mass.uncertainty, n, True))
+        return t, r, "the host on the main sequence from its mass"
+    return None
+
+
+def detectability(facts: SystemFacts, subject: str, host: str | None, d: Detection, nd, settings: Settings):
+    """P(detectable) = P(inside the searched range) × P(Δm in the search band ≤ its contrast), and how each was got."""
+    n = settings.samples
+    claim = next((c for c in facts.system.claims if c.companion == subject and c.ref == d.ref and c.epoch == d.epoch),
+                 None)
+    s_rho = claim.rho.uncertainty if claim is not None and claim.rho is not None else 0.0
+    s_dm = claim.delta_mag.uncertainty if claim is not None and claim.delta_mag is not None else 0.0
+    t_search = float(julian_years([nd.epoch])[0])
+    rng = np.random.default_rng(hierarchy.seed_from(subject, host, d.rho, s_rho, d.delta_mag, s_dm, d.band, d.year,
+                                                    nd.rho_range, nd.contrast, nd.band, t_search, n))
+    rho0 = _draw(rng, d.rho, s_rho, n, True)
+    lo, hi = nd.rho_range
+    # expected motion between the claim and the search
+    mass = facts.member_mass(host) if host is not None else None
+    rep = facts.representative(host) if host is not None else None
+    plx = facts.stars[rep].parallax if rep in facts.stars else None
+    dt = t_search - d.year
+    if mass is not None and plx is not None and plx.mean > 0 and abs(dt) > 0:
+        companion = facts.stars[subject].mass if subject in facts.stars else None
+        total = _draw(rng, mass[0], mass[1], n, True) + (0.0 if companion is None else companion.value)
+        orbits = hierarchy.draw_sky_orbits(rng, n)
+        a = rho0 / hierarchy.sky_ratio(orbits.mean_anomaly, orbits.e, orbits.cos_i, orbits.omega)  # arcsec
+        period = binary.kepler_period_yr(a * 1000.0 / plx.mean, total)
+        rho1 = a * hierarchy.sky_ratio(orbits.mean_anomaly + 2.0 * np.pi * dt / period, orbits.e, orbits.cos_i,
+                                       orbits.omega)
+        lo_q, hi_q = np.percentile(rho1, [16, 84])
+        how_in = f"expected at {lo_q:.2g}–{hi_q:.2g}″ (16–84 %) after {dt:.1f} yr of orbital motion"
+    else:
+        rho1 = rho0
+        how_in = "no mass or parallax of the host: the companion is taken not to move"
+    p_in = float(np.mean((rho1 >= lo) & (rho1 <= hi)))
+    # contrast in the search's band
+    dm = _draw(rng, d.delta_mag, s_dm, n)
+    waves = {**hierarchy.BAND_WAVELENGTH_UM, **settings.band_wavelengths_um}
+    if nd.band is None or d.band is None or nd.band == d.band:
+        how_dm = "same band" if nd.band == d.band and nd.band is not None else "band not stated, taken as the same"
+    else:
+        host_star = _host_star(facts, host, rng, n) if d.band in waves and nd.band in waves else None
+        if host_star is not None:
+            th, rh, source = host_star
+            known = facts.stars[subject].mass if subject in facts.stars else None
+            if known is not None:
+                tc, rc = hierarchy.zams_teff_radius(_draw(rng, known.value, known.uncertainty, n, True))
+            else:
+                m2, _ = hierarchy.companion_mass_from_delta_mag(dm, waves[d.band], th, rh)
+                tc, rc = hierarchy.zams_teff_radius(m2)
+            colour = (hierarchy.band_delta_mag(th, rh, tc, rc, waves[nd.band])
+                      - hierarchy.band_delta_mag(th, rh, tc, rc, waves[d.band]))
+            dm = dm + colour + rng.normal(0.0, settings.colour_model_sigma, n)
+            q16, q50, q84 = np.percentile(dm, [16, 50, 84])
+            how_dm = (f"Δm({nd.band}) ≈ {q50:.1f} ({q16:.1f}–{q84:.1f}) from Δm({d.band}) by blackbody contrasts at "
+                      f"{waves[d.band]:g} and {waves[nd.band]:g} µm, {source}, the companion on the main sequence")
+        else:
+            dm = dm + rng.normal(0.0, settings.unknown_band_sigma, n)
+            how_dm = (f"Δm({d.band}) carried over to {nd.band} with {settings.unknown_band_sigma:g} mag more uncertainty: "
+                      + ("no effective wavelength for these bands" if not (d.band in waves and nd.band in waves)
+                         else "no temperature for the host"))
+    p_dm = float(np.mean(dm <= nd.contrast))
+    return p_in * p_dm, p_in, p_dm, how_in, how_dm
+
+
 def applies(facts: SystemFacts, subject: str) -> bool:
     return any(c.companion == subject for c in facts.system.claims) or any(
         p.members[1] == subject and p.id in facts.rv_orbits for p in facts.system.pairs
@@ -124,16 +242,18 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         for d in found:
             if d.rho is None or d.delta_mag is None:
                 continue
-            margin = 0.0 if (nd.band is None or d.band is None or nd.band == d.band) else settings.band_margin
-            inside = nd.rho_range[0] <= d.rho <= nd.rho_range[1]
-            if inside and d.delta_mag + margin <= nd.contrast:
+            p, p_in, p_dm, how_in, how_dm = detectability(facts, subject, host, d, nd, settings)
+            searched = (f"{nd.method} in {nd.epoch} ({nd.ref}), which reached Δm = {nd.contrast:.1f}"
+                        + (f" ({nd.band})" if nd.band else "") + f" between {nd.rho_range[0]:g}″ and {nd.rho_range[1]:g}″")
+            odds = (f"P(detectable) = {p:.2f}: P(inside the range) = {p_in:.2f} ({how_in}) × "
+                    f"P(bright enough) = {p_dm:.2f} ({how_dm})")
+            if p >= settings.detect_probability:
                 missed.append(nd)
-                reasons.append(
-                    f"Not seen by {nd.method} in {nd.epoch} ({nd.ref}), which reached Δm = {nd.contrast:.1f}"
-                    + (f" ({nd.band})" if nd.band else "") + f" between {nd.rho_range[0]:g}″ and {nd.rho_range[1]:g}″: "
-                    f"the claimed companion (Δm = {d.delta_mag:.1f} at {d.rho:.3g}″) should have been seen"
-                    + (f" even allowing {margin:.1f} mag for the different band." if margin else "."))
+                reasons.append(f"Not seen by {searched}: the claimed companion (Δm = {d.delta_mag:.1f} at {d.rho:.3g}″ "
+                               f"in {d.epoch}) should have been seen, {odds}.")
                 break
+            reasons.append(f"Searched by {searched}: not counted as missed, {odds}, below "
+                           f"{settings.detect_probability:g}.")
     # motion between imaging epochs against a bound orbit
     impossible = False
     host_mass = facts.member_mass(host) if host is not None else None
@@ -184,13 +304,15 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
 RULE = Rule(
     id="companion-claims",
     title="Grade of a claimed companion",
-    version=1,
+    version=2,
     subject="component",
     question="context",
     needs=("claims of detection", "non-detections with their sensitivity", "a spectroscopic orbit (optional)",
            "the host's mass and parallax (for the motion check)"),
-    citation="Our own grading scale; detectability from the searches' stated contrast limits (common practice); "
-    "escape speed from Kepler's third law",
+    citation="Our own grading scale; detectability from the searches' stated contrast limits with the companion's "
+    "expected orbital motion (random orbits scaled to the claim, cf. Blunt, S. et al. 2017, AJ 153, 229) and its "
+    "contrast converted between bands by blackbodies (Tout, C. A. et al. 1996, MNRAS 281, 257; effective wavelengths "
+    "of Bessell, M. S., Castelli, F. & Plez, B. 1998, A&A 333, 231); escape speed from Kepler's third law",
     settings=Settings,
     weigh=weigh,
     doc=__doc__ or "",

@@ -120,6 +120,7 @@ class Motion:
     pmdec_error: float
     ref: str
     correlation: float = float("nan")  # of the pmra and pmdec errors, where the source gives it
+    how: str = ""  # what was done to the measured motion (e.g. referred to an unresolved pair's barycentre)
 
 
 @dataclass(frozen=True)
@@ -187,7 +188,10 @@ class SystemFacts:
             if comp is None or len(comp.radial_velocity_series) < 3:
                 continue
             stage = comp.physical.stage if comp.physical else None
-            out[pair.id] = analyse_rv(pair.id, first, list(comp.radial_velocity_series), stage, settings, self.cache)
+            m = comp.physical.mass if comp.physical else None
+            mass = None if m is None else (m.value, m.uncertainty or 0.0)
+            out[pair.id] = analyse_rv(pair.id, first, list(comp.radial_velocity_series), stage, settings, self.cache,
+                                      mass)
         return out
 
     def systemic_velocity(self, component: str) -> Measured | None:
@@ -197,9 +201,11 @@ class SystemFacts:
             if orbit is None or not orbit.detected:
                 continue
             if component in (pair.members[0], pair.parent):
-                fit = orbit.fit
+                # γ of the reference instrument (the one with most velocities), median and half the 68 %
+                # interval of the posterior; other instruments' zero points are fitted offsets from it
+                g = orbit.posterior.gamma[orbit.reference_instrument]
                 # a derived value, not a source of the evidence: constructed without the source-id check
-                return Measured.model_construct(value=float(fit.gamma), uncertainty=float(fit.sigma_gamma),
+                return Measured.model_construct(value=float(g.q50), uncertainty=float(g.half_width),
                                                 ref=f"fitted orbit of {pair.id}")
         return None
 
@@ -226,6 +232,54 @@ class SystemFacts:
         el = (orbit.period_years, orbit.periastron_time.value, orbit.eccentricity.value, orbit.semimajor_axis.value,
               orbit.inclination.value, orbit.node.value, orbit.periastron_argument.value)
         return lambda t: orbits.ephemeris_xy(t, *el)
+
+    @cached_property
+    def visual_posteriors(self) -> dict:
+        """Posterior of a visual orbit fitted to each pair's log (pair id -> ``OrbitPosterior`` or None).
+
+        Computed once per pair, through the cache, for pairs whose log has at least the orbit-fit
+        rule's ``min_nights`` nights and a curved path (``[log] curvature_p``). Pairs with a published
+        visual orbit are fitted only when ``refit_published`` is set under ``[rules.orbit-fit]`` or
+        ``[rules.orbit-consistency]`` (a fit costs about a second). Priors: the pair parallax and,
+        for the total mass, the sum of the component masses (uncertainty doubled, at least 20 %: the
+        masses are model-dependent) or a broad log-normal prior (see
+        :mod:`dossier.astro.orbit_posterior`).
+        """
+        from dossier.rules.registry import BY_ID, rule_settings
+
+        fit_settings = rule_settings(self.settings.rules, BY_ID["orbit-fit"])
+        refit = bool(fit_settings.refit_published) or bool(
+            self.settings.rules.get("orbit-consistency", {}).get("refit_published", False))
+        out: dict = {}
+        for pid, log in self.logs.items():
+            out[pid] = None
+            if len(log.mt) < fit_settings.min_nights or not log.is_curved(self.settings.log.curvature_p):
+                continue
+            if self.visual_orbit(pid) is not None and not refit:
+                continue
+            out[pid] = visual_posterior(log, self.pair_parallax(pid), self.pair_mass(pid), self.cache)
+        return out
+
+    def ephemeris_posterior(self, pair_id: str):
+        """Orbits to predict a pair's position from (an ``OrbitPosterior``), or None.
+
+        The posterior fitted to the log when the arc determines the orbit; else draws about the
+        published visual orbit (``OrbitPosterior.from_published``); else a partial-arc posterior
+        (its bands are wide, honestly); else None.
+        """
+        from dossier.astro import orbit_posterior as op
+
+        fitted = self.visual_posteriors.get(pair_id)
+        log = self.logs.get(pair_id)
+        status = None
+        if fitted is not None and log is not None:
+            status = op.adequacy(fitted, log.span_years).status
+            if status == "determined":
+                return fitted
+        published = self.visual_orbit(pair_id)
+        if published is not None:
+            return published_posterior(published, self.pair_parallax(pair_id))
+        return fitted if status == "partial" else None
 
     # -- components ---------------------------------------------------------
 
@@ -274,10 +328,82 @@ class SystemFacts:
                     distance_q84_pc=1000.0 * float(quant[row, 2]),
                     precision=str(precision[row]),
                 )
+
+        def barycentric(cid: str, motion: Motion, epoch: str) -> Motion:
+            """The motion of a component resolved by an inner pair (one unresolved solution of the blend),
+            referred to the pair's barycentre: the photocentre's orbital velocity subtracted when a visual
+            orbit is published, else its rms added to the errors (:mod:`dossier.astro.hierarchy`)."""
+            from dataclasses import replace
+
+            from dossier.astro import hierarchy, stars as stellar
+
+            inner = next((p for p in self.system.pairs if p.parent == cid), None)
+            if inner is None:
+                return motion
+            names = " and ".join(inner.members)
+            phys = [comps[m].physical if m in comps else None for m in inner.members]
+            if any(ph is None or ph.mass is None for ph in phys):
+                return replace(motion, how=f"the photocentre of {names} (unresolved pair {inner.id}): "
+                                           "not referred to its barycentre, for want of both masses")
+            (m1, s1), (m2, s2) = ((ph.mass.value, ph.mass.uncertainty) for ph in phys)
+            common = [b for b in ("V", *sorted(comps[inner.members[0]].magnitudes)) if
+                      b in comps[inner.members[0]].magnitudes and b in comps[inner.members[1]].magnitudes]
+            if common:
+                a, b = (comps[m].magnitudes[common[0]] for m in inner.members)
+                dm, sdm, light = b.value - a.value, math.hypot(a.uncertainty, b.uncertainty), f"Δm({common[0]})"
+            else:  # bolometric contrast on the main sequence (Tout et al. 1996): an approximation
+                lum = stellar.zams_luminosity(np.array([m1, m2]))
+                dm, sdm, light = float(-2.5 * np.log10(lum[1] / lum[0])), 0.5, "Δm from main-sequence luminosities"
+            t = julian_year(epoch)
+            plx = combined.get(cid)
+            orbit = next((o for o in self.system.orbits if o.pair == inner.id and o.is_visual), None)
+            any_orbit = next((o for o in self.system.orbits if o.pair == inner.id), None)
+            if any_orbit is not None:
+                period = any_orbit.period_years
+            elif plx is not None and plx.mean > 0 and inner.measures:
+                rho = max(inner.measures, key=lambda m: julian_year(m.epoch)).rho.value
+                period = float(np.sqrt((rho * 1000.0 / plx.mean) ** 3 / (m1 + m2)))  # a ≈ ρ d, Kepler's third law
+            else:
+                period = None
+            if period is not None and period < hierarchy.ASTROMETRIC_SPAN_YR:
+                return replace(motion, how=f"the photocentre of {names}: their {period:.3g} yr orbit averages out of a "
+                                           "multi-year astrometric solution; not corrected")
+            if orbit is not None:
+                el = tuple((float(x.value), float(x.uncertainty)) for x in (
+                    orbit.periastron_time, orbit.eccentricity, orbit.semimajor_axis, orbit.inclination, orbit.node,
+                    orbit.periastron_argument))
+                elements = ((orbit.period_years, orbit.period_years_error), *el)
+                seed = hierarchy.seed_from(cid, inner.id, t, m1, s1, m2, s2, dm, sdm, *np.ravel(elements))
+                ve, vn, se, sn = hierarchy.photocentre_velocity_draws(np.random.default_rng(seed), 4000, t, (m1, s1),
+                                                                      (m2, s2), (dm, sdm), elements)
+                ex, ey = math.hypot(motion.pmra_error, se), math.hypot(motion.pmdec_error, sn)
+                return replace(motion, pmra=motion.pmra - ve, pmdec=motion.pmdec - vn, pmra_error=ex, pmdec_error=ey,
+                               correlation=motion.correlation * motion.pmra_error * motion.pmdec_error / (ex * ey),
+                               how=f"referred to the barycentre of {names}: the photocentre's orbital velocity "
+                                   f"({ve:+.2f}, {vn:+.2f}) ± ({se:.2f}, {sn:.2f}) mas/yr at J{t:.2f} from the published "
+                                   f"orbit of {inner.id} ({orbit.ref}, masses and {light}) was subtracted")
+            if period is None or plx is None or plx.mean <= 0:
+                return replace(motion, how=f"the photocentre of the unresolved pair {inner.id}: not referred to its "
+                                           "barycentre, for want of a period or separation and a parallax")
+            a_mas = float(np.cbrt(period**2 * (m1 + m2))) * plx.mean
+            v = float(hierarchy.rms_photocentre_velocity(hierarchy.photocentre_factor(m1, m2, dm), a_mas, period))
+            ex, ey = math.hypot(motion.pmra_error, v), math.hypot(motion.pmdec_error, v)
+            return replace(motion, pmra_error=ex, pmdec_error=ey,
+                           correlation=motion.correlation * motion.pmra_error * motion.pmdec_error / (ex * ey),
+                           how=f"the photocentre of {names} moves about their barycentre: its rms orbital velocity "
+                               f"{v:.2f} mas/yr per axis (P ≈ {period:.3g} yr, masses and {light}) was added in "
+                               "quadrature to the errors")
+
         out = {}
         for cid, comp in comps.items():
             pos = _best(comp.astrometry, lambda a: None if a.ra is None else -julian_year(a.epoch))
             mot = _best(comp.astrometry, lambda a: None if a.pmra is None else a.pmra.uncertainty**2 + a.pmdec.uncertainty**2)
+            motion = None
+            if mot is not None:
+                motion = barycentric(cid, Motion(
+                    mot.pmra.value, mot.pmdec.value, mot.pmra.uncertainty, mot.pmdec.uncertainty, _ref(mot.pmra, mot),
+                    float("nan") if mot.correlations is None or mot.correlations.pmra_pmdec is None
+                    else mot.correlations.pmra_pmdec), mot.epoch)
             phys = comp.physical
             mass = None
             if phys is not None and phys.mass is not None:
@@ -287,11 +413,7 @@ class SystemFacts:
                 id=cid,
                 parallax=combined.get(cid),
                 position=None if pos is None else Position(pos.ra.value, pos.dec.value, julian_year(pos.epoch), _ref(pos.ra, pos)),
-                motion=None
-                if mot is None
-                else Motion(mot.pmra.value, mot.pmdec.value, mot.pmra.uncertainty, mot.pmdec.uncertainty, _ref(mot.pmra, mot),
-                            float("nan") if mot.correlations is None or mot.correlations.pmra_pmdec is None
-                            else mot.correlations.pmra_pmdec),
+                motion=motion,
                 radial_velocity=gamma if gamma is not None else comp.radial_velocity,
                 rv_from_orbit=gamma is not None,
                 mass=mass,
@@ -447,6 +569,10 @@ class PairLog:
     def span_years(self) -> float:
         return float(self.mt.max() - self.mt.min()) if self.mt.size else 0.0
 
+    def is_curved(self, p_threshold: float) -> bool:
+        """Is the path curved: the curvature test's p-value below ``p_threshold`` (``[log] curvature_p``)?"""
+        return self.curvature is not None and bool(self.curvature.p_value < p_threshold)
+
 
 def reduce_log(measures: list, ra: float, dec: float, log_settings, model=None) -> PairLog:
     """Reduce one pair's measures (see :class:`PairLog`).
@@ -514,8 +640,16 @@ def reduce_log(measures: list, ra: float, dec: float, log_settings, model=None) 
 class RVOrbit:
     """The radial-velocity series of a pair's primary and what it shows.
 
-    ``detected`` when the series is variable (log10 p < ``variable_log_p``) and a
-    Keplerian orbit was fitted; then ``fit`` holds the elements.
+    ``status`` is one of ``RV_STATUSES``: ``constant`` / ``possibly variable``
+    (the χ² test of ``variability``), ``variable, too few velocities`` (fewer
+    than the orbit needs), ``variable, period not determined`` (the search ran
+    but a gate failed: ``solution.reasons``) or ``orbit found``. ``solution``
+    is the :class:`dossier.astro.spectro.OrbitSolution` whenever the search
+    ran; ``fit`` its maximum-likelihood orbit (per-instrument γ, jitter),
+    ``posterior`` its emcee summary, ``periodogram`` its periodogram.
+    ``detected`` when the status is ``orbit found``. ``jitter`` is the jitter
+    expected for the star's stage (km/s), used in the variability test and as
+    the prior's median.
     """
 
     pair: str
@@ -527,9 +661,41 @@ class RVOrbit:
     instruments: tuple
     jitter: float
     variability: object
-    periodogram: object | None
-    fit: object | None
-    detected: bool
+    solution: object | None
+    status: str
+
+    @property
+    def detected(self) -> bool:
+        return self.status == ORBIT_FOUND
+
+    @property
+    def fit(self):
+        return None if self.solution is None else self.solution.fit
+
+    @property
+    def posterior(self):
+        return None if self.solution is None else self.solution.posterior
+
+    @property
+    def periodogram(self):
+        return None if self.solution is None else self.solution.periodogram
+
+    @property
+    def reference_instrument(self) -> int:
+        """Index (in ``solution.instruments``) of the instrument whose γ is the systemic velocity: the one
+        with most velocities, the first listed on a tie."""
+        names = list(self.solution.instruments) if self.solution is not None else [""]
+        counts = [sum(1 for x in self.instruments if (x or "") == n) for n in names]
+        return int(np.argmax(counts))
+
+    def offsets(self) -> np.ndarray:
+        """Per velocity, its instrument's γ minus the reference instrument's (km/s; zeros without a fit)."""
+        if self.fit is None:
+            return np.zeros(len(self.v))
+        names = list(self.solution.instruments)
+        g = np.asarray(self.fit.gamma)
+        idx = [names.index(x or "") for x in self.instruments]
+        return g[idx] - g[self.reference_instrument]
 
     def epochs_by_ref(self) -> dict[str, list[float]]:
         out: dict[str, list[float]] = {}
@@ -538,11 +704,31 @@ class RVOrbit:
         return out
 
 
+ORBIT_FOUND = "orbit found"
+RV_STATUSES = ("constant", "possibly variable", "variable, too few velocities", "variable, period not determined",
+               ORBIT_FOUND)
 GIANT_STAGES = frozenset({"giant", "core-helium-burning", "asymptotic-giant", "subgiant"})
 
 
-def analyse_rv(pair_id: str, star_id: str, series: list, stage: str | None, settings, cache=None) -> RVOrbit:
-    """Variability test, period search and Keplerian fit of one star's RV series."""
+def stage_jitter(stage: str | None, settings) -> float:
+    """Jitter expected for an evolutionary stage (km/s), from the spectroscopic-orbit rule's settings."""
+    if stage == "subgiant":
+        return settings.subgiant_jitter_kms
+    if stage in ("giant", "core-helium-burning"):
+        return settings.giant_jitter_kms
+    if stage == "asymptotic-giant":
+        return settings.asymptotic_giant_jitter_kms
+    return settings.jitter_kms
+
+
+def analyse_rv(pair_id: str, star_id: str, series: list, stage: str | None, settings, cache=None,
+               mass: tuple[float, float] | None = None) -> RVOrbit:
+    """Variability test, period search, alias check, Keplerian fit and posterior of one star's RV series.
+
+    ``mass`` is the primary's (value, 1σ) in M☉, for the minimum companion
+    mass. The search (:func:`dossier.astro.spectro.solve_orbit`) is cached
+    under every input and setting it uses.
+    """
     from dossier.astro import spectro
 
     jd = julian_days([e.epoch for e in series])
@@ -550,24 +736,85 @@ def analyse_rv(pair_id: str, star_id: str, series: list, stage: str | None, sett
     sigma = np.array([e.velocity.uncertainty for e in series])
     refs = tuple(e.velocity.ref or e.ref or "" for e in series)
     instruments = tuple(e.instrument or "" for e in series)
-    jitter = settings.giant_jitter_kms if stage in GIANT_STAGES else settings.jitter_kms
+    jitter = stage_jitter(stage, settings)
     var = spectro.variability(v, sigma, jitter)
-    periodogram = fit = None
-    detected = False
-    if var.log10_p < settings.variable_log_p and len(v) >= settings.min_epochs:
+    n_inst = len(set(instruments))
+    solution = None
+    if var.log10_p >= settings.variable_log_p:
+        status = "possibly variable" if var.log10_p < settings.possibly_variable_log_p else "constant"
+    elif len(v) < max(settings.min_epochs, 8 + n_inst):  # 5 elements, the γs, the jitter and 2 dof
+        status = "variable, too few velocities"
+    else:
+        options = dict(
+            stage_jitter=jitter, jitter_prior_dex=settings.jitter_prior_dex,
+            jitter_tolerance=settings.jitter_tolerance, min_period=settings.min_period_days,
+            span_multiple=settings.max_period_spans, samples_per_peak=settings.samples_per_peak,
+            n_peaks=settings.n_peaks, n_window_peaks=settings.n_window_peaks, max_fap=settings.max_fap,
+            alias_delta_bic=settings.alias_delta_bic, min_log10_p_adequacy=settings.min_log10_p_adequacy,
+            max_period_rel_error=settings.max_period_rel_error, min_dof=settings.min_dof,
+            n_walkers=settings.n_walkers,
+            n_steps=settings.n_steps, max_steps=settings.max_steps,
+            m1=None if mass is None else float(mass[0]), sigma_m1=0.0 if mass is None else float(mass[1]),
+        )
 
         def compute() -> dict:
-            pg = spectro.periodogram(jd, v, np.hypot(sigma, jitter))
-            # one periodogram: its highest peaks are the fit's starting periods
-            kf = spectro.fit_keplerian(jd, v, sigma, jitter=jitter, periods=pg.top_periods(5), n_starts=0)
-            return {"periodogram": [pg.frequency.tolist(), pg.power.tolist(), float(pg.best_period),
-                                    float(pg.false_alarm_probability)],
-                    "fit": [float(x) if not isinstance(x, (bool, int)) else x for x in kf]}
+            return spectro.solve_orbit(jd, v, sigma, instruments, **options).to_json()
 
-        inputs = {"jd": jd.tolist(), "v": v.tolist(), "sigma": sigma.tolist(), "jitter": jitter}
-        stored = (cache or Cache(None)).get_or_compute("rv-orbit", inputs, compute)
-        freq, power, best, fap = stored["periodogram"]
-        periodogram = spectro.Periodogram(np.array(freq), np.array(power), best, fap)
-        fit = spectro.KeplerFit(*stored["fit"])
-        detected = bool(fit.converged)
-    return RVOrbit(pair_id, star_id, jd, v, sigma, refs, instruments, jitter, var, periodogram, fit, detected)
+        inputs = {"jd": jd.tolist(), "v": v.tolist(), "sigma": sigma.tolist(), "instruments": list(instruments),
+                  "options": options}
+        stored = (cache or Cache(None)).get_or_compute("rv-orbit-2", inputs, compute)
+        solution = spectro.OrbitSolution.from_json(stored)
+        status = ORBIT_FOUND if solution.found else "variable, period not determined"
+    return RVOrbit(pair_id, star_id, jd, v, sigma, refs, instruments, jitter, var, solution, status)
+
+
+# ----------------------------------------------------------------------------
+# Visual orbits: posteriors fitted to the log, draws about a published orbit
+
+#: Changes whenever the sampler or its priors change, so that cached posteriors are recomputed.
+VISUAL_POSTERIOR_VERSION = "2"
+VISUAL_POSTERIOR_SAMPLES = 1000
+
+
+def visual_posterior(log: PairLog, parallax: tuple[float, float] | None, mass, cache=None):
+    """The orbit posterior of one pair's nightly means (``orbit_posterior.posterior``), through the cache."""
+    from dossier.astro import orbit_posterior as op
+
+    if mass is not None and mass[0] > 0:
+        # component masses come from models: their errors doubled, and at least 20 % (our choice)
+        prior = op.MassPrior(float(mass[0]), max(2.0 * float(mass[1]), 0.2 * float(mass[0])), "normal")
+    else:
+        prior = op.BROAD_MASS_PRIOR
+    plx, splx = (None, 0.0) if parallax is None else (float(parallax[0]), float(parallax[1]))
+    inputs = {"t": log.mt.tolist(), "x": log.mx.tolist(), "y": log.my.tolist(), "sx": log.msx.tolist(),
+              "sy": log.msy.tolist(), "parallax": plx, "sigma_parallax": splx, "mass_prior": list(prior),
+              "n": VISUAL_POSTERIOR_SAMPLES, "version": VISUAL_POSTERIOR_VERSION}
+
+    def compute() -> dict:
+        post = op.posterior(log.mt, log.mx, log.my, log.msx, log.msy, parallax_mas=plx, sigma_parallax_mas=splx,
+                            mass_prior=prior, n_samples=VISUAL_POSTERIOR_SAMPLES)
+        return post.to_json()
+
+    stored = (cache or Cache(None)).get_or_compute("visual-orbit-posterior", inputs, compute)
+    return op.OrbitPosterior.from_json(stored)
+
+
+def published_elements(orbit) -> tuple[tuple[float, ...], tuple[float, ...]]:
+    """(P, T, e, a, i, Omega, omega) of a published visual orbit and their 1-sigma uncertainties."""
+    values = (orbit.period_years, orbit.periastron_time.value, orbit.eccentricity.value, orbit.semimajor_axis.value,
+              orbit.inclination.value, orbit.node.value, orbit.periastron_argument.value)
+    sigmas = (orbit.period_years_error, orbit.periastron_time.uncertainty, orbit.eccentricity.uncertainty,
+              orbit.semimajor_axis.uncertainty, orbit.inclination.uncertainty, orbit.node.uncertainty,
+              orbit.periastron_argument.uncertainty)
+    return values, sigmas
+
+
+def published_posterior(orbit, parallax: tuple[float, float] | None, n: int = VISUAL_POSTERIOR_SAMPLES):
+    """Gaussian draws about a published visual orbit (``OrbitPosterior.from_published``), seeded from it."""
+    from dossier.astro import orbit_posterior as op
+
+    values, sigmas = published_elements(orbit)
+    seed = op.seed_from("published", values, sigmas, orbit.ref, parallax)
+    return op.OrbitPosterior.from_published(values, sigmas, n, seed,
+                                            parallax_mas=None if parallax is None else parallax[0],
+                                            sigma_parallax_mas=0.0 if parallax is None else parallax[1])

@@ -158,6 +158,9 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     if cols["shared_parallax"][0] == 1:
         text += " Both members have the one parallax of the unresolved component: it gives the distance only."
     sources += [st.motion.ref for st in (a, b) if st.motion]
+    for name, st in ((pair.first, a), (pair.second, b)):
+        if st.motion is not None and st.motion.how:
+            text += f" Proper motion of {name}: {st.motion.how}."
     sources += [st.radial_velocity.ref for st in (a, b) if st.radial_velocity and st.radial_velocity.ref]
     return RULE.assessment(subject, outcome, text, strength=odds, quantities=quantities,
                            statistic=Quantity("log10_odds", "log10 odds physical : chance", odds, ""),

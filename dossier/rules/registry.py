@@ -26,6 +26,7 @@ from dossier.rules import (
     separation_period,
     space_velocity,
     spectroscopic_orbit,
+    triple_stability,
 )
 from dossier.rules.base import Rule, RuleSettings
 
@@ -43,6 +44,7 @@ RULES: tuple[Rule, ...] = (
     spectroscopic_orbit.RULE,
     companion_claims.RULE,
     separation_period.RULE,
+    triple_stability.RULE,
     luminosity.RULE,
     coevality.RULE,
     space_velocity.RULE,

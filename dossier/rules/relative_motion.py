@@ -20,9 +20,12 @@ Strength
     1978, Ann. Stat. 6, 461; Kass & Raftery 1995, JASA 90, 773), floored at
     zero: a straight path is what an optical pair shows, but also what a
     wide bound pair shows over a short arc, so it is not evidence against.
+    The path counts as curved only when the F-test's p-value is below
+    ``[log] curvature_p`` (default 10⁻³), the one threshold the orbit-fit
+    rule uses too; otherwise the strength is zero.
 
 Outcome
-    ``supports`` when the strength exceeds +0.5; otherwise ``neutral``. The
+    ``supports`` when the path is curved and the strength exceeds +0.5; otherwise ``neutral``. The
     explanation says whether the fitted rate agrees with the relative proper
     motion (within 3σ).
 
@@ -87,10 +90,17 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         stat = Quantity("F", "F-test, quadratic against straight", c.F, "", how=f"p = {c.p_value:.2g}")
         quantities.append(Quantity("p_curvature", "p-value of no curvature", c.p_value, ""))
         quantities.append(Quantity("delta_bic", "ΔBIC (quadratic − straight)", c.delta_bic, ""))
-        if strength > settings.decisive:
+        # one threshold for "curved", shared with the orbit-fit rule: [log] curvature_p in dossier.toml
+        curved = bool(c.p_value < facts.settings.log.curvature_p)
+        if not curved:
+            strength = 0.0
+        if curved and strength > settings.decisive:
             outcome = "supports"
             text += (f" The path is curved (F = {c.F:.1f}, p = {c.p_value:.2g}, ΔBIC = {c.delta_bic:.1f}): "
                      "orbital acceleration, which only a physical pair shows.")
+        elif curved:
+            text += (f" The path is curved (p = {c.p_value:.2g}), but the quadratic's gain is not decisive "
+                     f"(ΔBIC = {c.delta_bic:.1f}).")
         else:
             text += f" No significant curvature (p = {c.p_value:.2g})."
     else:
@@ -103,7 +113,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
 RULE = Rule(
     id="relative-motion",
     title="Relative motion from the observing log",
-    version=1,
+    version=2,
     subject="pair",
     question="association",
     needs=("three or more nights of measures in the observing log", "proper motions (for the comparison)"),

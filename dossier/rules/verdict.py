@@ -284,6 +284,10 @@ def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings,
                             if _direction(c.question, c.log10, status) < 0)
     diagnostics_against = tuple(f"{a.title} (diagnostic, weighed inside the pair model): {a.explanation}"
                                 for a in assessments if a.rule in JOINT_RULES and _assessment_direction(a, status) < 0)
+    # a line that qualifies the description rather than the odds (e.g. an unstable hierarchy) still argues
+    # against the verdict as written, and is never hidden
+    context_against = tuple(f"{a.title} (context, not in the odds): {a.explanation}"
+                            for a in assessments if a.question == "context" and a.outcome == "against")
     limited = bool(prob is not None and min(prob, 1 - prob) < model_limit)
     return Verdict(
         pair=pair,
@@ -294,7 +298,7 @@ def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings,
         log10_odds=float(n["log10_odds"][0]),
         summary=summary,
         reasons_for=reasons_for,
-        reasons_against=reasons_against + diagnostics_against,
+        reasons_against=reasons_against + diagnostics_against + context_against,
         missing=reasons_missing,
         probability_of=PROBABILITY_OF[status],
         p_bound=float(n["p_bound"][0]),

@@ -144,6 +144,11 @@ class LogSettings(Model):
     outlier_threshold: float = Field(
         default=3.5, gt=0, description="Robust normalised residual above which a measure is flagged (never deleted)."
     )
+    curvature_p: float = Field(
+        default=1e-3, gt=0, lt=1,
+        description="p-value of the curvature test (F-test, quadratic against straight path) below which a log's "
+                    "path is called curved: by the relative-motion rule, and before the orbit-fit rule tries an orbit.",
+    )
     method_errors: dict[Method, MethodErrorSetting] = Field(
         default_factory=dict,
         description="Per-method uncertainties for measures that give none; overrides the built-in defaults.",

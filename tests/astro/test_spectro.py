@@ -16,15 +16,13 @@ from scipy.optimize import minimize_scalar
 from dossier.astro.spectro import (
     LOG10_P_POSSIBLY_VARIABLE,
     LOG10_P_VARIABLE,
-    KeplerFit,
-    _element_jacobian,
+    MAX_PERIOD_SPANS,
+    MIN_PERIOD_DAYS,
     _model_and_jacobian,
     a1_sin_i,
-    fit_keplerian,
+    frequency_grid,
     mass_function,
-    mass_function_uncertainty,
     minimum_companion_mass,
-    periodogram,
     rv_model,
     variability,
 )
@@ -114,20 +112,6 @@ def test_rv_model_broadcasts() -> None:
     assert rv_model(t, 5.0, 1.0, e, 30.0, 0.0, 0.0).shape == (2, 7)
 
 
-def test_element_jacobian_against_finite_differences() -> None:
-    # Reference: central differences of rv_model; agreement 1e-6 of K per unit
-    # element. Times near 0, so that T + h keeps its digits.
-    t = np.linspace(0.0, 40.0, 37)
-    el = np.array([TRUTH["P"], TRUTH["K"], 0.6, TRUTH["omega"], 3.1, TRUTH["gamma"]])
-    J = _element_jacobian(t, *el[:5])
-    for k, h in enumerate([1e-6, 1e-6, 1e-7, 1e-5, 1e-6, 1e-6]):
-        up, dn = el.copy(), el.copy()
-        up[k] += h
-        dn[k] -= h
-        fd = (rv_model(t, *up[:3], up[3], up[4], up[5]) - rv_model(t, *dn[:3], dn[3], dn[4], dn[5])) / (2 * h)
-        np.testing.assert_allclose(J[:, k], fd, rtol=0, atol=1e-6 * TRUTH["K"])
-
-
 @pytest.mark.parametrize("e", [0.0, 1e-6, 0.4, 0.95])
 def test_internal_jacobian_against_finite_differences(e: float) -> None:
     # Reference: central differences of the model in the fit's own parameters
@@ -195,113 +179,15 @@ def test_variability_needs_two_velocities() -> None:
 # --- Periodogram ----------------------------------------------------------------------
 
 
-def test_periodogram_recovers_planted_period() -> None:
-    # Synthetic truth: a 7.31-day sinusoid of 3 km/s in noise of 1 km/s, 40
-    # epochs over 120 days; the best period within 1 % of the truth and a
-    # false-alarm probability below 1e-3.
-    rng = np.random.default_rng(2024)
-    t = np.sort(rng.uniform(0.0, 120.0, 40))
-    v = 4.0 + 3.0 * np.sin(2 * np.pi * t / 7.31 + 0.4) + rng.normal(0.0, 1.0, 40)
-    pg = periodogram(t, v, 1.0)
-    assert pg.best_period == pytest.approx(7.31, rel=0.01)
-    assert pg.false_alarm_probability < 1e-3
-    # Default range: 1.5 d (the epochs here are closer than 0.75 d) to 3 x span.
-    span = np.ptp(t)
-    assert pg.frequency.min() == pytest.approx(1.0 / (3.0 * span), rel=1e-12)
-    assert pg.frequency.max() == pytest.approx(1.0 / 1.5, rel=0.002)
-    freq, power, best, fap = pg  # unpacks as the 4-tuple callers use
-    assert best == pg.best_period
-    # Starting periods for a fit: three distinct local maxima, highest first.
-    idx = [int(np.argmin(np.abs(freq - 1.0 / p))) for p in pg.top_periods(3)]
-    assert len(set(idx)) == 3 and idx[0] == int(np.argmax(power))
-    assert all(power[k] >= power[k - 1] and power[k] >= power[k + 1] for k in idx)
-    assert power[idx[0]] >= power[idx[1]] >= power[idx[2]]
-
-
-def test_periodogram_of_noise_is_not_significant() -> None:
-    # Pure noise: the highest peak is not significant (false-alarm probability
-    # above 1 %) for this seeded draw.
-    rng = np.random.default_rng(7)
-    t = np.sort(rng.uniform(0.0, 300.0, 25))
-    pg = periodogram(t, rng.normal(0.0, 1.0, 25), 1.0)
-    assert pg.false_alarm_probability > 0.01
-
-
-def test_periodogram_floor_follows_sparse_sampling() -> None:
-    # Epochs at least 40 d apart: the shortest default period is twice that.
+def test_frequency_grid_reaches_short_periods_under_sparse_sampling() -> None:
+    # Epochs at least 40 d apart: the default search still reaches 0.5 d (the old floor of twice the
+    # smallest spacing, about 80 d here, hid a reported 5.3-d binary), and runs to 3 spans, sampled
+    # 10 times per peak width 1/span (VanderPlas 2018, ApJS 236, 16; from memory).
     t = np.array([0.0, 40.0, 95.0, 180.0, 260.0, 330.0, 410.0])
-    pg = periodogram(t, np.sin(t / 50.0), 0.1)
-    assert pg.frequency.max() <= 1.0 / 80.0
-
-
-# --- Keplerian fit --------------------------------------------------------------------
-
-
-def test_fit_keplerian_recovers_elements() -> None:
-    # Synthetic truth (TRUTH) with 30 epochs of 0.5 km/s noise: every element
-    # within 4 sigma; K > 0, omega in [0, 360) and T the periastron nearest
-    # the middle of the data.
-    rng = np.random.default_rng(11)
-    t, v = _observe(rng, 30, 200.0, 0.5)
-    fit = fit_keplerian(t, v, 0.5)
-    assert isinstance(fit, KeplerFit) and fit.converged
-    assert fit.K > 0 and 0.0 <= fit.omega < 360.0
-    assert abs(fit.T - 0.5 * (t.min() + t.max())) <= 0.5 * fit.P
-    diff = {k: getattr(fit, k) - TRUTH[k] for k in TRUTH}
-    diff["omega"] = float(_wrap(diff["omega"], 360.0))
-    diff["T"] = float(_wrap(diff["T"], TRUTH["P"]))
-    for k, d in diff.items():
-        assert abs(d) < 4.0 * getattr(fit, f"sigma_{k}"), k
-    assert fit.dof == 24 and fit.rms == pytest.approx(0.5, rel=0.4)
-
-
-def test_fit_keplerian_circular_orbit() -> None:
-    # Synthetic circular orbit: P and K recovered within 4 sigma, e small; the
-    # fit does not fail where omega and T are undetermined.
-    rng = np.random.default_rng(5)
-    t = np.sort(rng.uniform(0.0, 90.0, 25))
-    v = rv_model(t, 6.2, 14.0, 0.0, 0.0, 1.3, 2.0) + rng.normal(0.0, 0.4, 25)
-    fit = fit_keplerian(t, v, 0.4)
-    assert fit.converged
-    assert abs(fit.P - 6.2) < 4 * fit.sigma_P and abs(fit.K - 14.0) < 4 * fit.sigma_K
-    assert fit.e < 0.05
-    assert np.all(np.isfinite([fit.P, fit.K, fit.e, fit.omega, fit.T, fit.gamma]))
-
-
-def test_fit_keplerian_from_given_period_only() -> None:
-    # n_starts=0: only the given starting period, no periodogram.
-    rng = np.random.default_rng(3)
-    t, v = _observe(rng, 20, 150.0, 1.0)
-    fit = fit_keplerian(t, v, 1.0, periods=[12.0], n_starts=0)
-    assert fit.P == pytest.approx(TRUTH["P"], abs=4 * fit.sigma_P)
-
-
-def test_fit_keplerian_needs_six_velocities() -> None:
-    with pytest.raises(ValueError) as err:
-        fit_keplerian(np.arange(5.0), np.zeros(5), 1.0)
-    assert str(err.value) == "5 velocities cannot fix 6 elements. Fix: give at least 6 velocities."
-
-
-def test_coverage_of_the_reported_uncertainties() -> None:
-    # Monte Carlo against the synthetic truth (TRUTH): 60 seeded trials of 20
-    # epochs over 150 days, noise 2 km/s. For P, K, e and gamma the normalised
-    # errors (fit - truth) / sigma must have a standard deviation in [0.7, 1.4]
-    # and a fraction within 1 sigma of 0.683 +- 0.18 (3 binomial standard
-    # deviations for 60 trials). The sigmas are scaled up by chi2 / dof when
-    # that exceeds 1, which makes them slightly conservative.
-    names = ("P", "K", "e", "gamma")
-    z = {k: [] for k in names}
-    for seed in range(60):
-        rng = np.random.default_rng(1000 + seed)
-        t, v = _observe(rng, 20, 150.0, 2.0)
-        fit = fit_keplerian(t, v, 2.0)
-        assert abs(fit.P - TRUTH["P"]) < 0.5, f"trial {seed} found P = {fit.P}"
-        for k in names:
-            z[k].append((getattr(fit, k) - TRUTH[k]) / getattr(fit, f"sigma_{k}"))
-    for k in names:
-        zk = np.array(z[k])
-        assert 0.7 <= zk.std() <= 1.4, (k, zk.std())
-        assert abs(np.mean(np.abs(zk) < 1.0) - 0.683) <= 0.18, (k, np.mean(np.abs(zk) < 1.0))
+    freq = frequency_grid(t, MIN_PERIOD_DAYS, MAX_PERIOD_SPANS, 10)
+    assert freq.max() == pytest.approx(2.0, rel=0.01)
+    assert freq.min() == pytest.approx(1.0 / (3.0 * 410.0), rel=1e-9)
+    assert np.diff(freq) == pytest.approx(np.full(freq.size - 1, 1.0 / (10 * 410.0)), rel=1e-6)
 
 
 # --- Masses and sizes -----------------------------------------------------------------
@@ -341,21 +227,6 @@ def test_mass_function_coefficient() -> None:
     assert mass_function(1.0, 1.0, 0.0) == pytest.approx(1.0361e-7, abs=0.00005e-7)
 
 
-def test_mass_function_uncertainty_against_finite_differences() -> None:
-    # Reference: first-order propagation with central-difference derivatives of
-    # mass_function; agreement 1e-6 relative.
-    P, K, e = 41.7, 18.3, 0.42
-    sP, sK, se = 0.2, 0.6, 0.03
-    grads = []
-    for k, h in enumerate([1e-4, 1e-4, 1e-6]):
-        x_up, x_dn = [P, K, e], [P, K, e]
-        x_up[k] += h
-        x_dn[k] -= h
-        grads.append((mass_function(*x_up) - mass_function(*x_dn)) / (2 * h))
-    expected = np.sqrt((grads[0] * sP) ** 2 + (grads[1] * sK) ** 2 + (grads[2] * se) ** 2)
-    assert mass_function_uncertainty(P, sP, K, sK, e, se) == pytest.approx(expected, rel=1e-6)
-
-
 def test_minimum_companion_mass_solves_back() -> None:
     # Reference: the defining equation m2^3 / (m1 + m2)^2 = f, and the m2 of an
     # edge-on orbit (sin i = 1) from which f was made; relative tolerance 1e-12.
@@ -393,3 +264,146 @@ def test_a1_sin_i_coefficient() -> None:
     # Hilditch 2001, ch. 2 (from memory): a1 sin i = 1.3751e4 sqrt(1 - e^2) K P km.
     km = a1_sin_i(1.0, 1.0, 0.0).au * (1 * u.au).to_value(u.km)
     assert km == pytest.approx(1.3751e4, abs=0.5)
+
+
+# --- Orbit solution: period search with aliases, offsets, jitter, posterior -----------
+
+from dossier.astro.spectro import (  # noqa: E402
+    FOUND,
+    solve_orbit,
+    spectral_window,
+    window_peaks,
+)
+
+
+def _monthly_53d(seed: int, n: int = 25) -> tuple[np.ndarray, np.ndarray]:
+    """The reported case: a 5.3-d single-lined binary, K = 30 km/s, errors 0.2 km/s, observed about
+    monthly for two years at a similar time of night (invented numbers)."""
+    rng = np.random.default_rng(seed)
+    t = 2458000.0 + np.sort(30.0 * np.arange(n) + rng.uniform(-5, 5, n)) + rng.uniform(0.6, 0.9, n)
+    v = rv_model(t, 5.3, 30.0, 0.1, 40.0, 2458001.3, 12.0) + rng.normal(0.0, 0.2, n)
+    return t, v
+
+
+def test_spectral_window_of_nightly_sampling_peaks_at_one_per_day() -> None:
+    # Common practice (Deeming 1975, Ap&SS 39, 447 is the periodogram; the daily alias is textbook):
+    # epochs at one time of night put the window's highest peak beyond the central lobe near 1 / day;
+    # the window is 1 at zero frequency by definition.
+    rng = np.random.default_rng(5)
+    t = np.sort(rng.choice(np.arange(200.0), 40, replace=False)) + rng.normal(0.3, 0.02, 40)
+    assert spectral_window(t, np.array([0.0]))[0] == pytest.approx(1.0, abs=1e-12)
+    f = np.linspace(0.001, 1.5, 30000)
+    assert window_peaks(t, f, 1)[0] == pytest.approx(1.0, abs=0.003)
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_reported_53_day_binary_is_never_given_a_wrong_period(seed: int) -> None:
+    # The user's report (a 5.3-d orbit sampled monthly came out as 67.2 d with chi2 = 257,323 for 23 dof,
+    # "supports"): now either the right period within 1 % or "not determined"; never a wrong period.
+    t, v = _monthly_53d(seed)
+    sol = solve_orbit(t, v, 0.2)
+    assert sol.status != FOUND or abs(sol.posterior.P.q50 / 5.3 - 1) < 0.01
+    # With the old search floor (twice the smallest spacing of the epochs, here ~40 d) the true period
+    # cannot be reached: the best wrong orbit must fail the adequacy gate rather than be reported.
+    old = solve_orbit(t, v, 0.2, min_period=2.0 * float(np.diff(t).min()))
+    assert old.status != FOUND
+    assert any("does not fit" in r for r in old.reasons)
+
+
+def test_recovers_a_simulated_orbit_with_honest_intervals() -> None:
+    # Synthetic truth (TRUTH, 30 epochs over 200 d, errors 0.5 km/s): the period is found, and each of
+    # P, K, e, omega, T and gamma lies within 3 half-widths of its 68 % interval (a 3-sigma tolerance;
+    # coverage at the 68 % level is what benchmarks/rv_orbit_recovery.py measures over 200 systems).
+    rng = np.random.default_rng(11)
+    t, v = _observe(rng, 30, 200.0, 0.5)
+    sol = solve_orbit(t, v, 0.5, m1=1.2, sigma_m1=0.1)
+    assert sol.status == FOUND, sol.reasons
+    post = sol.posterior
+    assert post.converged
+    for name, truth in (("P", TRUTH["P"]), ("K", TRUTH["K"]), ("e", TRUTH["e"])):
+        iv = getattr(post, name)
+        assert abs(iv.q50 - truth) < 3 * iv.half_width + 1e-9, name
+    assert abs(_wrap(post.omega.q50 - TRUTH["omega"], 360.0)) < 3 * post.omega.half_width
+    assert abs(_wrap(post.T.q50 - TRUTH["T"], TRUTH["P"])) < 3 * post.T.half_width
+    assert abs(post.gamma[0].q50 - TRUTH["gamma"]) < 3 * post.gamma[0].half_width
+    # f(M) and m2_min: the interval of the posterior holds the value at the truth (Hilditch 2001 formula,
+    # and the bisection tested above), within the interval widened by 3
+    f_true = float(mass_function(TRUTH["P"], TRUTH["K"], TRUTH["e"]))
+    assert abs(post.mass_function.q50 - f_true) < 3 * post.mass_function.half_width
+    m2_true = float(minimum_companion_mass(f_true, 1.2))
+    assert post.m2_min.q16 - 2 * post.m2_min.minus < m2_true < post.m2_min.q84 + 2 * post.m2_min.plus
+    # the Bayes factor of orbit over constant is decisive for a 25 km/s orbit in 0.5 km/s noise
+    assert sol.log10_bayes_factor > 20
+
+
+def test_per_instrument_offsets_are_recovered() -> None:
+    # Synthetic truth: the same orbit seen by two instruments whose zero points differ by 0.8 km/s;
+    # gamma_2 - gamma_1 within 3 combined half-widths of 0.8 (a 3-sigma tolerance).
+    rng = np.random.default_rng(21)
+    t, v = _observe(rng, 36, 300.0, 0.3)
+    inst = np.where(np.arange(36) % 3 == 0, "blue-arm", "red-arm")
+    v = v + np.where(inst == "blue-arm", 0.8, 0.0)
+    sol = solve_orbit(t, v, 0.3, inst)
+    assert sol.status == FOUND, sol.reasons
+    assert sol.instruments == ("blue-arm", "red-arm")
+    g_blue, g_red = sol.posterior.gamma
+    assert abs((g_blue.q50 - g_red.q50) - 0.8) < 3 * np.hypot(g_blue.half_width, g_red.half_width)
+    # one gamma only: the fit has to absorb the 0.8 km/s step and fails the adequacy gate
+    one = solve_orbit(t, v, 0.3)
+    assert one.status != FOUND and any("does not fit" in r for r in one.reasons)
+
+
+def test_giant_jitter_is_fitted_and_judged_against_the_stage() -> None:
+    # A giant whose surface adds 0.1 km/s of scatter (tens to hundreds of m/s: Hekker et al. 2008, A&A 480,
+    # 215) to 0.02 km/s errors. With the giant's prior (0.05 km/s) the orbit is found and the jitter
+    # interval, widened by 3 half-widths, holds 0.1 km/s; with a dwarf's (0.005 km/s) the excess
+    # scatter fails the adequacy gate (chi2 of ~36 residuals of 0.1 km/s with 0.015 km/s errors).
+    rng = np.random.default_rng(31)
+    t = np.sort(rng.uniform(0, 900, 36))
+    v = rv_model(t, 143.0, 4.0, 0.2, 300.0, 50.0, -3.0) + rng.normal(0, np.hypot(0.02, 0.1), 36)
+    giant = solve_orbit(t, v, 0.02, stage_jitter=0.05)
+    assert giant.status == FOUND, giant.reasons
+    j = giant.posterior.jitter
+    assert j.q16 - 3 * j.minus < 0.1 < j.q84 + 3 * j.plus
+    dwarf = solve_orbit(t, v, 0.02, stage_jitter=0.005)
+    assert dwarf.status != FOUND and any("does not fit" in r for r in dwarf.reasons)
+
+
+def test_noise_gives_no_period_and_lists_candidates() -> None:
+    # Pure noise (seeded): the top peak is not significant; candidates are still listed with their FAPs.
+    rng = np.random.default_rng(41)
+    t = np.sort(rng.uniform(0, 700, 25))
+    sol = solve_orbit(t, rng.normal(0, 1.0, 25), 1.0)
+    assert sol.status != FOUND and sol.posterior is None
+    assert sol.candidates and all(0 <= c.fap <= 1 for c in sol.candidates)
+
+
+def test_solution_is_deterministic_and_round_trips_through_json() -> None:
+    # The seed is a hash of the inputs: two runs give identical results, byte for byte as JSON.
+    import json
+
+    rng = np.random.default_rng(11)
+    t, v = _observe(rng, 30, 200.0, 0.5)
+    a = solve_orbit(t, v, 0.5, n_steps=300, max_steps=300)
+    b = solve_orbit(t, v, 0.5, n_steps=300, max_steps=300)
+    assert json.dumps(a.to_json()) == json.dumps(b.to_json())
+    back = type(a).from_json(json.loads(json.dumps(a.to_json())))
+    assert json.dumps(back.to_json()) == json.dumps(a.to_json())
+
+
+@pytest.mark.slow
+def test_recovery_benchmark_reports_no_wrong_period() -> None:
+    # The seeded population of benchmarks/rv_orbit_recovery.py (40 systems): no period reported as found
+    # lies more than 1 % from the truth.
+    import importlib.util
+    import sys
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[2] / "benchmarks" / "rv_orbit_recovery.py"
+    spec = importlib.util.spec_from_file_location("rv_orbit_recovery", path)
+    mod = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = mod  # dataclasses look their module up there
+    spec.loader.exec_module(mod)
+    result = mod.run(40, seed=1, echo=lambda *a: None)
+    assert result["wrong"] == []
+    assert result["found"] > 0

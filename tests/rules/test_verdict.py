@@ -122,3 +122,32 @@ def test_without_the_model_the_other_lines_start_from_even_odds():
     assert "could not be applied" in v.summary
     nothing = combine("AB", [insufficient], VerdictSettings())
     assert nothing.status == "undetermined" and nothing.probability is None
+
+
+def test_a_resolved_inner_pair_without_its_published_orbit_is_judged_by_its_data(demo_copy):
+    # Reported: with its published orbit removed, the demo's Ba-Bb read "undetermined" beside
+    # a probability of 0.99999999. Its log, parallaxes and motions still speak: the status must
+    # follow the probability it shows (the thresholds of VerdictSettings).
+    from dossier.engine import weigh_project
+    from dossier.schema.loader import load_project
+
+    evidence = demo_copy / "systems" / "heron-1" / "evidence.yaml"
+    text = evidence.read_text(encoding="utf-8")
+    start = text.index("  - pair: Ba-Bb\n")
+    end = text.index("\nneighbours:")
+    evidence.write_text(text[:start] + text[end:], encoding="utf-8")
+    project = load_project(demo_copy)
+    assert not [o for o in project.systems["heron-1"].orbits if o.pair == "Ba-Bb"]
+    verdict = weigh_project(project)["heron-1"].verdicts["Ba-Bb"]
+    settings = VerdictSettings()
+    assert verdict.status == "bound"
+    assert verdict.p_bound >= settings.bound_threshold
+
+
+def test_a_context_line_against_the_description_is_listed_but_not_multiplied():
+    # e.g. a hierarchy the Mardling & Aarseth (2001) criterion finds unstable: it questions the
+    # description, not the odds, and must still be shown among the reasons against
+    base = model(math.log(6.0), math.log(3.0), math.log(1.0))
+    v = combine("AB", [base, make("triple-stability", "context", "against", None)], VerdictSettings())
+    assert (v.p_bound, v.p_comoving, v.p_chance) == pytest.approx((0.6, 0.3, 0.1))  # the model's own normalised evidences
+    assert any(r.startswith("triple-stability (context, not in the odds)") for r in v.reasons_against)
