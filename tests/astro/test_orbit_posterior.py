@@ -140,10 +140,11 @@ def test_posterior_json_round_trip_is_exact():
 @pytest.mark.parametrize("sigma", [0.05, 0.01])
 def test_intervals_are_calibrated_on_simulated_arcs(sigma):
     # Bayesian calibration over orbits drawn from the priors (Cook, Gelman & Rubin 2006, J. Comput. Graph.
-    # Stat. 15, 675; from memory): the 68 % intervals contain the truth 68 % of the time. With 300 trials the
-    # binomial standard error is 0.027, so each element is held within 3 of them (0.081), and their mean, whose
-    # error is smaller (the elements are correlated, so not √5 smaller), within 0.04 (the README's 68 ± 5 %
-    # target is for the benchmark's figures). Errors of 50 mas give vague posteriors, 10 mas sharper curved ones.
+    # Stat. 15, 675; from memory): the 68 % intervals contain the truth 68 % of the time. With 150 trials the
+    # binomial standard error is 0.038, so each element is held within 3 of them (0.114), and their mean, whose
+    # error is smaller (the elements are correlated, so not √5 smaller), within 0.05 (the README's 68 ± 5 %
+    # target is checked by the benchmark at 300 trials). Errors of 50 mas give vague posteriors, 10 mas sharper
+    # curved ones. The first samplers, which this guards against, held the truth a third of the time at 10 mas.
     import sys
 
     spec = importlib.util.spec_from_file_location(
@@ -151,7 +152,7 @@ def test_intervals_are_calibrated_on_simulated_arcs(sigma):
     bench = importlib.util.module_from_spec(spec)
     sys.modules[spec.name] = bench  # dataclasses look their module up there
     spec.loader.exec_module(bench)
-    out = bench.run(300, sigma=sigma)
+    out = bench.run(150, sigma=sigma)
     for k, f in out["fractions"].items():
-        assert abs(f - 0.68) < 0.081, (k, f)
-    assert abs(np.mean(list(out["fractions"].values())) - 0.68) < 0.04
+        assert abs(f - 0.68) < 0.114, (k, f)
+    assert abs(np.mean(list(out["fractions"].values())) - 0.68) < 0.05, out["fractions"]
