@@ -185,6 +185,57 @@ def weigh(project: Path, system_id: str | None, as_json: bool) -> None:
         print_results(Console(), results, loaded.settings.pair_model.model_limit)
 
 
+class BuildStages:
+    """What the build command shows of a build's stages (a :class:`dossier.site.BuildReport`).
+
+    With ``show``, a bar per stage on standard error (or on ``console``), made
+    at the first stage told of: a build that finds its site current shows none.
+    The bars stay, each with its count and time, above the line that ends the
+    build; they go to the terminal only, never into a file of the site.
+    """
+
+    def __init__(self, stack, show: bool, console=None) -> None:
+        self.stack, self.show, self.console = stack, show, console
+        self.bars = None
+        self.tasks: dict[str, int] = {}
+        self.counts = None  # dossier.site.BuildCounts, when the build is finished
+
+    def stage(self, name: str, done: int, total: int) -> None:
+        if not self.show:
+            return
+        if self.bars is None:
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+
+            self.bars = self.stack.enter_context(Progress(
+                "[progress.description]{task.description}", BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                console=self.console if self.console is not None else Console(stderr=True)))
+        if name not in self.tasks:
+            self.tasks[name] = self.bars.add_task(name, total=total)
+        self.bars.update(self.tasks[name], completed=done, total=total)
+
+    def finished(self, counts) -> None:
+        self.counts = counts
+
+
+def build_summary(index: Path, counts, seconds: float) -> str:
+    """The line that ends a build: where the site is, what it holds (``counts``, a
+    :class:`dossier.site.BuildCounts`, or None when unknown) and how long the build took."""
+
+    def n(k: int, word: str) -> str:
+        return f"{k} {word}" + ("" if k == 1 else "s")
+
+    took = f"in {seconds:.1f} s"
+    if counts is None:
+        return f"Built {index.parent} {took} — open {index}"
+    systems = n(counts.systems, "system")
+    if counts.written and counts.computed < counts.systems:
+        systems += f" ({counts.systems - counts.computed} from the cache)"
+    held = f"{systems}, {n(counts.pages, 'page')}, {n(counts.pdfs, 'PDF')}, {n(counts.figures, 'figure')}"
+    where = f"{index.parent}" if counts.written else f"{index.parent} (unchanged, nothing written)"
+    return f"Built {where}: {held} {took} — open {index}"
+
+
 @cli.command()
 @project_arg
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False, path_type=Path),
@@ -192,8 +243,8 @@ def weigh(project: Path, system_id: str | None, as_json: bool) -> None:
 @click.option("--pdf/--no-pdf", default=True, show_default=True,
               help="Write a PDF of each dossier (--no-pdf for a quicker preview).")
 @click.option("--progress/--no-progress", default=None,
-              help="Show a progress bar on standard error while systems are weighed, drawn and rendered "
-                   "(default: when standard error is a terminal).")
+              help="Show a progress bar per stage on standard error: systems weighed, figures drawn, pages "
+                   "rendered, PDFs, files written, links checked (default: when standard error is a terminal).")
 @click.option("--jobs", type=click.IntRange(min=1), metavar="N",
               help="Processes that weigh, draw and render changed systems (default: one per CPU core when "
                    "there are many, else one).")
@@ -202,28 +253,19 @@ def build(project: Path, out_dir: Path, pdf: bool, progress: bool | None, jobs: 
 
     Unchanged systems come from the project's cache (.dossier-cache/); when
     nothing changed since the last build into the same folder, nothing is written.
+    The last line says what the site holds and how long the build took.
     """
     import contextlib
+    import time
 
+    started = time.perf_counter()
     from dossier.site import build as build_site
 
     show = sys.stderr.isatty() if progress is None else progress
     with contextlib.ExitStack() as stack:
-        bar: list = []  # made at the first system computed: an unchanged project shows no bar
-
-        def advance(done: int, total: int) -> None:
-            if not bar:
-                from rich.console import Console
-                from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
-
-                shown = stack.enter_context(Progress("[progress.description]{task.description}", BarColumn(),
-                                                     MofNCompleteColumn(), TimeElapsedColumn(),
-                                                     console=Console(stderr=True), transient=True))
-                bar.extend([shown, shown.add_task("weighing, drawing and rendering systems", total=total)])
-            bar[0].update(bar[1], completed=done)
-
-        index = build_site(project, out_dir, pdf=pdf, workers=jobs, progress=advance if show else None)
-    click.echo(f"Built {index.parent} — open {index}")
+        stages = BuildStages(stack, show)
+        index = build_site(project, out_dir, pdf=pdf, workers=jobs, report=stages)
+    click.echo(build_summary(index, stages.counts, time.perf_counter() - started))
 
 
 @cli.command()

@@ -23,10 +23,10 @@ from __future__ import annotations
 import math
 import re
 from collections import Counter
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Literal
 
-from dossier.fmt import fmt_log10, fmt_number
+from dossier.fmt import fmt_fixed, fmt_log10, fmt_number, p_statement
 from dossier.render.terms import ODDS, labelled, probability_label
 
 #: Format of a state; bumped when a key changes meaning or goes away.
@@ -123,6 +123,9 @@ def state_of(project, result) -> dict[str, Any]:
         if row.kind == "derived":
             derived[row.field] = {"subject": row.subject, "value": _num(row.value),
                                   "uncertainty": _num(row.uncertainty), "unit": row.unit, "rule": row.rule}
+    for field_key, text in quantity_labels(result).items():  # so that a release names its quantities in words
+        if field_key in derived:
+            derived[field_key]["label"] = text
     from dossier.render.terms import uses
 
     assessments = {}
@@ -171,7 +174,9 @@ class Change:
     """One difference between two states of a system's dossier.
 
     ``before`` and ``after`` are short human-readable texts (``None`` when
-    the entry was added or withdrawn).
+    the entry was added or withdrawn); ``old`` and ``new`` are the entries of
+    the two states themselves, for :func:`describe` (not compared, not in
+    :meth:`to_dict`).
     """
 
     system: str
@@ -179,6 +184,8 @@ class Change:
     key: str
     before: str | None
     after: str | None
+    old: Any = field(default=None, compare=False, repr=False)
+    new: Any = field(default=None, compare=False, repr=False)
 
     @property
     def action(self) -> str:
@@ -289,18 +296,20 @@ def compare(before: dict[str, Any] | None, after: dict[str, Any] | None) -> list
     sid = (after or before)["system"]  # type: ignore[index]
     if before is None or after is None:
         title = (after or before)["title"]  # type: ignore[index]
-        return [Change(sid, "system", sid, None if before is None else title, None if after is None else title)]
+        return [Change(sid, "system", sid, None if before is None else title, None if after is None else title,
+                       before, after)]
     changes: list[Change] = []
     for kind, key, fmt, same in _SECTIONS:
         old, new = before.get(key, {}), after.get(key, {})
         for name, entry in new.items():
             if name not in old:
-                changes.append(Change(sid, kind, name, None, fmt(entry)))  # type: ignore[arg-type]
+                changes.append(Change(sid, kind, name, None, fmt(entry), None, entry))  # type: ignore[arg-type]
             elif not same(old[name], entry):
-                changes.append(Change(sid, kind, name, fmt(old[name]), fmt(entry)))  # type: ignore[arg-type]
+                changes.append(Change(sid, kind, name, fmt(old[name]), fmt(entry),  # type: ignore[arg-type]
+                                      old[name], entry))
         for name, entry in old.items():
             if name not in new:
-                changes.append(Change(sid, kind, name, fmt(entry), None))  # type: ignore[arg-type]
+                changes.append(Change(sid, kind, name, fmt(entry), None, entry, None))  # type: ignore[arg-type]
     return changes
 
 
@@ -310,6 +319,318 @@ def compare_projects(before: dict[str, dict[str, Any]], after: dict[str, dict[st
     for sid in sorted(set(before) | set(after)):
         changes += compare(before.get(sid), after.get(sid))
     return changes
+
+
+# ----------------------------------------------------------------------------
+# Changes in words: quantities by their labels, values in their units
+
+
+def quantity_labels(result) -> dict[str, str]:
+    """The label of every derived quantity of a weighed system, by its state key
+    (``assessments.parallax-agreement.AD.delta_parallax``: 'Parallax difference ϖ₁ − ϖ₂')."""
+    labels: dict[str, str] = {}
+    for a in result.assessments:
+        found = list(a.quantities) + ([a.statistic] if a.statistic is not None else [])
+        for q in found:
+            labels.setdefault(f"assessments.{a.rule}.{a.subject}.{q.name}", q.label)
+    return labels
+
+
+#: Angles in degrees per unit, to give an angle's uncertainty the precision of its value in the value's unit.
+_DEGREES = {"deg": 1.0, "°": 1.0, "arcmin": 1 / 60, "′": 1 / 60, "arcsec": 1 / 3600, "″": 1 / 3600,
+            "mas": 1 / 3_600_000, "µas": 1 / 3_600_000_000}
+#: Units written as a symbol right after the number.
+_SYMBOLS = {"deg": "°", "°": "°", "arcmin": "′", "′": "′", "arcsec": "″", "″": "″"}
+#: A schema unit that records value and uncertainty in different units: 'deg (uncertainty in mas)'.
+_SPLIT_UNIT = re.compile(r"^(?P<value>.+?) \(uncertainty in (?P<uncertainty>.+)\)$")
+
+
+def split_unit(unit: str | None) -> tuple[str, str]:
+    """(unit of the value, unit of the uncertainty): ('deg', 'mas') for 'deg (uncertainty in mas)'."""
+    unit = unit or ""
+    m = _SPLIT_UNIT.match(unit)
+    return (m["value"], m["uncertainty"]) if m else (unit, unit)
+
+
+def _with_unit(number: str, unit: str) -> str:
+    if not unit:
+        return number
+    return number + _SYMBOLS[unit] if unit in _SYMBOLS else f"{number} {unit}"
+
+
+def _two_figures(uncertainty: float) -> int:
+    """Decimals that give ``uncertainty`` two significant figures (common practice); negative for tens and up."""
+    decimals = 1 - math.floor(math.log10(uncertainty))
+    rounded = round(uncertainty, decimals)  # 0.0996 rounds to 0.10: two figures of the rounded number
+    return 1 - math.floor(math.log10(rounded)) if rounded > 0 else decimals
+
+
+def _fixed(value: float, decimals: int) -> str:
+    """``value`` at ``decimals`` (negative: rounded to tens, hundreds …), with a true minus sign."""
+    return fmt_fixed(value, decimals) if decimals >= 0 else fmt_fixed(round(value, decimals), 0)
+
+
+def _recorded_decimals(value: float) -> int:
+    """The decimals a recorded value was written with (its shortest repr): 201.3171123 → 7, 8.0 → 0."""
+    text = repr(float(value))
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        digits = len(mantissa.split(".")[1].rstrip("0")) if "." in mantissa else 0
+        return max(0, digits - int(exponent))
+    whole, _, frac = text.partition(".")
+    return len(frac.rstrip("0"))
+
+
+def fmt_measure(value: float | None, uncertainty: float | None = None, unit: str | None = "",
+                recorded: bool = False) -> str:
+    """A value with its uncertainty, each in its own unit, at the precision the uncertainty sets.
+
+    The uncertainty is given two significant figures and the value is rounded to the same decimal
+    place (common practice): 7.311 ± 0.109 mas reads '7.31 ± 0.11 mas'. An angle whose uncertainty is
+    recorded in another unit (the schema's 'deg (uncertainty in mas)') is rounded at the uncertainty
+    converted into the value's unit, and each part carries its own unit: '201.3171123° ± 0.060 mas'.
+    A ``recorded`` value (a measured one, as written in the evidence) never gains digits it was not
+    written with when its uncertainty is in another unit. Minus signs are true minus signs (U+2212);
+    '—' for no value.
+    """
+    if value is None or not math.isfinite(value):
+        return "—"
+    value_unit, unc_unit = split_unit(unit)
+    usable = uncertainty is not None and math.isfinite(uncertainty) and uncertainty > 0
+    if not usable:
+        text = _fmt_raw(value) if recorded else fmt_number(value, 4)
+        text = "\u2212" + text[1:] if text.startswith("-") else text
+        if uncertainty == 0:
+            text += f" ± 0"
+        return _with_unit(text, value_unit)
+    unc_decimals = _two_figures(uncertainty)
+    unc_text = _fixed(uncertainty, unc_decimals)
+    if unc_unit == value_unit:
+        if value_unit in _SYMBOLS:  # '2.47° ± 0.12°': a symbol binds to its own number
+            return f"{_with_unit(_fixed(value, unc_decimals), value_unit)} ± {_with_unit(unc_text, unc_unit)}"
+        return _with_unit(f"{_fixed(value, unc_decimals)} ± {unc_text}", value_unit)
+    if value_unit in _DEGREES and unc_unit in _DEGREES:
+        decimals = _two_figures(uncertainty * _DEGREES[unc_unit] / _DEGREES[value_unit])
+        if recorded:
+            decimals = min(decimals, _recorded_decimals(value))
+        number = _fixed(value, decimals)
+    else:  # units this module cannot convert: the value as recorded
+        number = _fmt_raw(value).replace("-", "\u2212")
+    return f"{_with_unit(number, value_unit)} ± {_with_unit(unc_text, unc_unit)}"
+
+
+def _measure_text(entry: dict[str, Any] | None, recorded: bool) -> str | None:
+    if entry is None:
+        return None
+    return fmt_measure(entry.get("value"), entry.get("uncertainty"), entry.get("unit"), recorded=recorded)
+
+
+def _humanised(name: str) -> str:
+    return name.replace("_", " ")
+
+
+def _schema_label(key: str) -> str:
+    """The schema's description of a measured value's field, shortened to a label ('Parallax')."""
+    from typing import get_args
+
+    from pydantic import BaseModel
+
+    from dossier.schema.models import System
+
+    def models_in(annotation: Any) -> list[Any]:
+        if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+            return [annotation]
+        return [m for arg in get_args(annotation) for m in models_in(arg)]
+
+    names = re.findall(r"\.?([^.\[\]]+)|\[[^\]]*\]", key)
+    names = [n for n in names if n]
+    model: Any = System
+    label, tail = None, []
+    i = 0
+    while i < len(names):
+        name = names[i]
+        info = model.model_fields.get(name) if model is not None else None
+        if info is None:
+            tail.append(name)
+            i += 1
+            continue
+        label = info.description or _humanised(name)
+        found = models_in(info.annotation)
+        is_mapping = "dict" in str(info.annotation)
+        i += 1
+        if is_mapping and i < len(names):  # components.A, magnitudes.V: a key of a mapping
+            if not found:
+                tail.append(names[i])
+            i += 1
+        model = found[0] if found else None
+        if found:
+            tail = []
+    if label is None:
+        return _humanised(names[-1]) if names else key
+    label = re.split(r" \[|: |, multiplied", label)[0].rstrip(".")
+    label = re.sub(r" per [a-z ]+$", "", label)
+    if label.endswith("(ICRS)"):
+        label = label[: -len(" (ICRS)")]
+    return " ".join([label, *tail]) if tail else label
+
+
+def _rule_title(rule_id: str) -> str:
+    from dossier.rules.registry import BY_ID
+
+    rule = BY_ID.get(rule_id)
+    return rule.title if rule is not None else rule_id
+
+
+def _subject_of_key(key: str) -> tuple[str, str]:
+    """('D', 'sky-survey-3') of 'components.D.astrometry[sky-survey-3].ra': the subject and the source in the key."""
+    parts = key.split(".")
+    subject = parts[1] if len(parts) > 1 and parts[0] in ("components", "pairs", "claims", "orbits") else ""
+    source = re.search(r"\[([^\]]+)\]", key)
+    return subject, source.group(1) if source and not source.group(1).isdigit() else ""
+
+
+def describe(change: Change, labels: dict[str, str] | None = None) -> str:
+    """A change in words, without its raw key: 'Parallax of D from sky-survey-3', 'Parallax agreement
+    on AD: parallax difference ϖ₁ − ϖ₂', 'Verdict on AD'.
+
+    ``labels``: labels of derived quantities by state key (:func:`quantity_labels`), for states that
+    do not record them (releases made before they did).
+    """
+    entry = change.new if change.new is not None else change.old
+    entry = entry if isinstance(entry, dict) else {}
+    key = change.key
+    if change.kind == "system":
+        return f"System {key}"
+    if change.kind == "verdict":
+        return f"Verdict on {key}"
+    if change.kind == "term":
+        return f"Term of the verdict on {entry.get('pair', key)}: {entry.get('line', key)}"
+    if change.kind == "grade":
+        return f"Grade of the claimed companion {key}"
+    if change.kind == "source":
+        return f"Source {key}"
+    if change.kind == "log":
+        return f"Observing log of {key}"
+    if change.kind == "assessment":
+        rule, _, subject = key.partition(" · ")
+        return f"{_rule_title(entry.get('rule', rule))} on {subject or entry.get('subject', '')}".strip()
+    if change.kind == "value":
+        subject, source = _subject_of_key(key)
+        text = _schema_label(key)
+        if subject and not re.search(rf"\b{re.escape(subject)}\b", text):
+            text += f" of {subject}"
+        return text + (f" from {source}" if source else "")
+    if change.kind == "derived":
+        parts = key.split(".")
+        rule = entry.get("rule") or (parts[1] if len(parts) > 3 else "")
+        label = entry.get("label") or (labels or {}).get(key) or _humanised(parts[-1])
+        subject = entry.get("subject") or (parts[2] if len(parts) > 3 else "")
+        return f"{_rule_title(rule)} on {subject}: {label[:1].lower() + label[1:] if label[1:2].islower() else label}"
+    return key
+
+
+def shown(change: Change, side: Literal["before", "after"]) -> str | None:
+    """The before or after of a change as people read it: values and derived quantities with their
+    units at the precision of their uncertainties (:func:`fmt_measure`), the rest as :attr:`Change.before`."""
+    entry = change.old if side == "before" else change.new
+    text = change.before if side == "before" else change.after
+    if change.kind in ("value", "derived") and isinstance(entry, dict):
+        shown_text = _measure_text(entry, recorded=change.kind == "value")
+        _, source = _subject_of_key(change.key)
+        if change.kind == "value" and entry.get("source") and entry["source"] != source:
+            shown_text += f" ({entry['source']})"
+        return shown_text
+    return text
+
+
+@dataclass(frozen=True)
+class Described:
+    """A change as a page shows it: in words, before and after in units, and its raw key for reference."""
+
+    change: Change
+    words: str
+    before: str | None
+    after: str | None
+
+    @property
+    def key(self) -> str:
+        return self.change.key
+
+    @property
+    def action(self) -> str:
+        return self.change.action
+
+
+def described(changes: list[Change], labels: dict[str, str] | None = None) -> list[tuple[str, str, list[Described]]]:
+    """:func:`grouped`, each change :func:`describe`-d with its :func:`shown` before and after."""
+    return [(sid, title, [Described(c, describe(c, labels), shown(c, "before"), shown(c, "after")) for c in found])
+            for sid, title, found in grouped(changes)]
+
+
+# ----------------------------------------------------------------------------
+# The verdicts, before and after
+
+
+@dataclass(frozen=True)
+class VerdictRow:
+    """One pair's verdict before and after: its status and its named probability on each side."""
+
+    pair: str
+    status_before: str | None
+    status_after: str | None
+    p_before: str | None
+    p_after: str | None
+
+    @property
+    def status_changed(self) -> bool:
+        return self.status_before != self.status_after
+
+    @property
+    def changed(self) -> bool:
+        return self.status_changed or self.p_before != self.p_after
+
+    def line(self) -> str:
+        """'AD: optical → optical; P(chance alignment) = 0.999999990 → 0.9999999984 (status changed)'."""
+        def side(status: str | None, p: str | None) -> str:
+            return "—" if status is None else f"{status} ({p})"
+        text = f"{self.pair}: {side(self.status_before, self.p_before)} → {side(self.status_after, self.p_after)}"
+        return text + (" — status changed" if self.status_changed else "")
+
+
+def _p_text(entry: dict[str, Any] | None) -> str | None:
+    if entry is None:
+        return None
+    label = verdict_label(entry)
+    if entry.get("probability") is None:
+        return f"{label}: not computed"
+    return p_statement(label, entry["probability"], entry.get("model_limit"))
+
+
+def verdict_rows(before: dict[str, Any] | None, after: dict[str, Any] | None) -> list[VerdictRow]:
+    """Every pair's verdict in ``before`` and ``after`` (pairs in the order of ``after``, then withdrawn ones)."""
+    old = (before or {}).get("verdicts", {})
+    new = (after or {}).get("verdicts", {})
+    rows = []
+    for pid in [*new, *(p for p in old if p not in new)]:
+        o, n = old.get(pid), new.get(pid)
+        rows.append(VerdictRow(pid, o and o["status"], n and n["status"], _p_text(o), _p_text(n)))
+    return rows
+
+
+def verdict_rows_of(changes: list[Change]) -> list[VerdictRow]:
+    """The verdict rows of the pairs whose verdict changes, from the changes alone (``dossier diff``)."""
+    return [VerdictRow(f"{c.system} {c.key}" if len({x.system for x in changes}) > 1 else c.key,
+                       c.old and c.old["status"], c.new and c.new["status"], _p_text(c.old), _p_text(c.new))
+            for c in changes if c.kind == "verdict"]
+
+
+def verdict_summary(rows: list[VerdictRow]) -> str:
+    """'No verdict changed.', or which statuses changed: 'The verdict on AD changed: optical → bound.'"""
+    changed = [r for r in rows if r.status_changed]
+    if not changed:
+        return "No verdict changed."
+    return " ".join(f"The verdict on {r.pair} changed: {r.status_before or '—'} → {r.status_after or '—'}."
+                    for r in changed)
 
 
 # ----------------------------------------------------------------------------
@@ -327,10 +648,19 @@ def grouped(changes: list[Change]) -> list[tuple[str, str, list[Change]]]:
     return out
 
 
+#: One change of each kind, in words ("1 source", not "1 sources").
+KIND_SINGULAR: dict[str, str] = {
+    "system": "system", "verdict": "verdict", "term": "term of a verdict", "grade": "companion-claim grade",
+    "source": "source", "value": "measured value", "log": "observing log", "assessment": "assessment",
+    "derived": "derived value",
+}
+
+
 def summary(changes: list[Change]) -> str:
-    """'2 verdicts; 1 sources; …': how many changes of each kind, in the order of :data:`KIND_TITLES`."""
+    """'2 verdicts; 1 source; …': how many changes of each kind, in the order of :data:`KIND_TITLES`."""
     counts = Counter(c.kind for c in changes)
-    return "; ".join(f"{counts[k]} {KIND_TITLES[k].lower()}" for k in KIND_TITLES if counts[k])
+    return "; ".join(f"{counts[k]} {KIND_SINGULAR[k] if counts[k] == 1 else KIND_TITLES[k].lower()}"
+                     for k in KIND_TITLES if counts[k])
 
 
 def _md(text: str | None) -> str:
@@ -346,6 +676,10 @@ def to_markdown(changes: list[Change], heading: str) -> str:
         lines += ["No change in values, sources, assessments, verdicts or grades.", ""]
         return "\n".join(lines)
     lines += [f"Changed entries: {summary(changes)}.", ""]
+    rows = verdict_rows_of(changes)
+    lines += [verdict_summary(rows), ""]
+    if rows:
+        lines += [f"- {_md(r.line())}" for r in rows] + [""]
     for sid, title, found in grouped(changes):
         lines += [f"### {sid}: {title}", "", "| Entry | Change | Before | After |", "|---|---|---|---|"]
         for c in found:
@@ -363,6 +697,10 @@ def print_changes(console, changes: list[Change], heading: str) -> None:
     if not changes:
         console.print("No change in values, sources, assessments, verdicts or grades.")
         return
+    rows = verdict_rows_of(changes)
+    console.print(Text(verdict_summary(rows), style="bold"))
+    for r in rows:
+        console.print(Text(f"  {r.line()}", style="yellow" if r.status_changed else ""))
     style = {"added": "green", "withdrawn": "red", "removed": "red", "changed": "yellow"}
     for sid, title, found in grouped(changes):
         table = Table(title=f"{sid}: {title}", title_justify="left", expand=True, show_lines=True)

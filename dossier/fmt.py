@@ -76,3 +76,16 @@ def fmt_interval(value: float, low: float, high: float) -> str:
     half = min(abs(value - low), abs(high - value))
     decimals = 6 if half <= 0 else min(6, max(0, 1 - int(math.floor(math.log10(half)))))
     return f"{value:.{decimals}f} ({low:.{decimals}f} to {high:.{decimals}f})"
+
+
+def decimals_for(uncertainty: float) -> int | None:
+    """Decimals that give an uncertainty two significant figures (common practice), at most 8; None if unusable."""
+    if not (isinstance(uncertainty, (int, float)) and math.isfinite(uncertainty) and uncertainty > 0):
+        return None
+    return min(8, max(0, 1 - int(math.floor(math.log10(uncertainty)))))
+
+
+def fmt_fixed(value: float, decimals: int) -> str:
+    """A number with fixed decimals and a true minus sign (U+2212), never in e-notation."""
+    text = f"{value:.{decimals}f}"
+    return "\u2212" + text[1:] if text.startswith("-") else text

@@ -166,12 +166,14 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
 
     The files of each release are copied into the site as they are, by :func:`site_pages`.
     """
-    from dossier.diff import compare, grouped, state_of, summary, verdict_label
+    from dossier.diff import compare, described, quantity_labels, state_of, summary, verdict_label, verdict_rows, \
+        verdict_summary
     from dossier.release import content_hash, evidence_files, version_label
     from dossier.render.terms import ODDS
 
     pages: dict[str, str] = {}
     label = version_label(history, content_hash(evidence_files(project.root, sid)))
+    labels = quantity_labels(result)  # names the quantities of releases whose states do not record them
     rows = []
     for i, rel in enumerate(history):
         n, base = rel.number, f"systems/{sid}/releases/{rel.number}/"
@@ -185,7 +187,9 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
         if previous:
             pages[base + "changes.html"] = render_page(
                 "changes.html", root="../../../../", sid=sid, system_link="../../index.html",
-                heading=f"what changed in release {n}", groups=grouped(changes), summary=summary(changes),
+                heading=f"what changed in release {n}", groups=described(changes, labels), summary=summary(changes),
+                verdicts=verdict_rows(previous.state, rel.state),
+                verdict_summary=verdict_summary(verdict_rows(previous.state, rel.state)),
                 before_label=f"release {previous.number} ({previous.date})", after_label=f"release {n} ({rel.date})",
                 **common)
         rows.append({"number": n, "date": rel.date, "note": rel.note, "approvals": len(rel.meta["approvals"]),
@@ -193,11 +197,13 @@ def _release_pages(project: Project, sid: str, result: SystemResult, history: li
     unreleased = None
     if label.startswith("draft after"):
         last = history[-1]
-        changes = compare(last.state, json.loads(json.dumps(state_of(project, result))))
+        current = json.loads(json.dumps(state_of(project, result)))
+        changes = compare(last.state, current)
         unreleased = summary(changes) or "no change in values, sources, assessments, verdicts or grades"
         pages[f"systems/{sid}/unreleased.html"] = render_page(
             "changes.html", root="../../", sid=sid, system_link="index.html",
-            heading=f"changes since release {last.number}", groups=grouped(changes), summary=summary(changes),
+            heading=f"changes since release {last.number}", groups=described(changes, labels), summary=summary(changes),
+            verdicts=verdict_rows(last.state, current), verdict_summary=verdict_summary(verdict_rows(last.state, current)),
             before_label=f"release {last.number} ({last.date})", after_label="the current evidence (not released)",
             **common)
     return pages, {"label": label, "releases": rows, "unreleased": unreleased}
@@ -311,12 +317,13 @@ def _catalogue_row(unit: dict) -> dict:
 
 
 def site_pages(settings, root: Path, units: dict[str, dict], releases: dict[str, list], pdf: bool = False,
-               use_cache: bool = True) -> dict[str, str | bytes]:
+               use_cache: bool = True, report: BuildReport | None = None) -> dict[str, str | bytes]:
     """Relative path -> page text (bytes for PDFs, logs and the files of releases), from every system's unit.
 
     ``units`` maps each system id, in catalogue order, to its
     :func:`system_unit`; ``releases`` maps a system id to its releases
     (:func:`dossier.release.all_releases`), whose files are copied as they are.
+    ``report`` (a :class:`BuildReport`) is told of the PDFs and the catalogue's pages as they are made.
     """
     from dossier.exports import ecsv_text, rows_table, votable_text
     from dossier.report import join_systems_json
@@ -338,8 +345,12 @@ def site_pages(settings, root: Path, units: dict[str, dict], releases: dict[str,
     if pdf:
         from dossier.cache import Cache
 
+        # render_pdfs is told of a report only when there is one: a stand-in for it may take two arguments
+        tell = {} if report is None else {"progress": lambda done, total: report.stage(STAGE_PDFS, done, total)}
         pages.update(render_pdfs({f"systems/{sid}/index.html": pages[f"systems/{sid}/index.html"] for sid in units},
-                                 Cache(root if use_cache else None)))
+                                 Cache(root if use_cache else None), **tell))
+    if report is not None:
+        report.stage(STAGE_CATALOGUE, 0, 1)
     pages["index.html"] = render_page("index.html", root="", systems=summaries,
                                       description_html=render_markdown(info.description), **common)
     pages["search-index.js"] = search_index_js(summaries)
@@ -350,6 +361,8 @@ def site_pages(settings, root: Path, units: dict[str, dict], releases: dict[str,
     table = rows_table([row for unit in units.values() for row in unit["catalogue"]])
     pages["catalogue.ecsv"] = ecsv_text(table)
     pages["catalogue.vot"] = votable_text(table)
+    if report is not None:
+        report.stage(STAGE_CATALOGUE, 1, 1)
     return pages
 
 
@@ -361,7 +374,7 @@ def _pdf_job(item: tuple[str, str]) -> tuple[str, bytes]:
     return rel.replace("index.html", "dossier.pdf"), render_pdf(html, templates_dir() / rel)
 
 
-def render_pdfs(html_pages: dict[str, str], cache=None) -> dict[str, bytes]:
+def render_pdfs(html_pages: dict[str, str], cache=None, progress=None) -> dict[str, bytes]:
     """A PDF beside each given page (``…/index.html`` → ``…/dossier.pdf``), over the CPU cores.
 
     WeasyPrint spends seconds laying out each long page; the pages are
@@ -369,7 +382,8 @@ def render_pdfs(html_pages: dict[str, str], cache=None) -> dict[str, bytes]:
     submission, so they do not depend on scheduling). With a
     :class:`dossier.cache.Cache`, a PDF whose page, stylesheets and WeasyPrint
     version are unchanged is taken from the cache: the same inputs give the
-    same bytes.
+    same bytes. ``progress(done, total)`` is called as the PDFs are had, from
+    ``(0, total)`` on (PDFs from the cache count at once).
     """
     import hashlib
     import os
@@ -388,15 +402,26 @@ def render_pdfs(html_pages: dict[str, str], cache=None) -> dict[str, bytes]:
             out[rel.replace("index.html", "dossier.pdf")] = found
         else:
             todo.append((rel, html))
+    total = len(html_pages)
+    tell = progress if progress is not None and total else (lambda done, total: None)
+    tell(len(out), total)
+
+    def counted(results) -> list[tuple[str, bytes]]:  # in order of submission, counted as each is had
+        made = []
+        for item in results:
+            made.append(item)
+            tell(len(out) + len(made), total)
+        return made
+
     workers = min(len(todo), os.cpu_count() or 1)
     if workers <= 1:
-        made = list(map(_pdf_job, todo))
+        made = counted(map(_pdf_job, todo))
     else:
         from concurrent.futures import ProcessPoolExecutor
         from multiprocessing import get_context
 
         with ProcessPoolExecutor(max_workers=workers, mp_context=get_context("spawn")) as pool:
-            made = list(pool.map(_pdf_job, todo))
+            made = counted(pool.map(_pdf_job, todo))
     for (rel, html), (name, data) in zip(todo, made):
         out[name] = data
         if cache is not None:
@@ -591,7 +616,8 @@ def _swap_in(staging: Path, out_dir: Path) -> Path | None:
     return swap_in(staging, out_dir, out_dir.with_name(f"{_staging_prefix(out_dir)}{os.getpid()}-{secrets.token_hex(4)}"))
 
 
-def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, str] | None = None) -> None:
+def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, str] | None = None,
+               report: BuildReport | None = None) -> None:
     """Write the site into a new folder beside ``out_dir``, then swap it in at once: never a half-written site.
 
     The pages, the stylesheets, the marker and ``manifest.json`` go into
@@ -609,6 +635,7 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
 
     Nothing is written when ``out_dir`` is a file, or a folder that is not
     empty and holds neither Dossier's marker nor a Dossier manifest.
+    ``report`` (a :class:`BuildReport`) is told of the files as they are written, then of the links' check.
     """
     import os
     import secrets
@@ -624,18 +651,23 @@ def write_site(out_dir: Path, pages: dict[str, str | bytes], inputs: dict[str, s
     staging.mkdir()  # with the umask's permissions: a site is for everyone to read
     lock = _hold(staging)
     previous = None
+    tell = report.stage if report is not None else (lambda stage, done, total: None)
     try:
-        for rel, text in sorted(pages.items()):
+        tell(STAGE_WRITE, 0, len(pages))
+        for done, (rel, text) in enumerate(sorted(pages.items()), 1):
             path = staging / rel
             path.parent.mkdir(parents=True, exist_ok=True)
             if isinstance(text, bytes):
                 path.write_bytes(text)
             else:
                 path.write_text(text, encoding="utf-8")
+            tell(STAGE_WRITE, done, len(pages))
         shutil.copytree(templates_dir() / "assets", staging / "assets")
         (staging / MARKER).write_text("built by dossier; this folder is replaced on every build\n", encoding="utf-8")
         (staging / MANIFEST).write_text(manifest_text(staging, inputs or {}), encoding="utf-8")
+        tell(STAGE_LINKS, 0, 1)
         broken = check_links(staging, pages)
+        tell(STAGE_LINKS, 1, 1)
         if broken:
             raise DossierError("broken links in the built site: " + "; ".join(broken))
         fsync_tree(staging)  # so that a power cut after the swap finds whole files
@@ -755,16 +787,23 @@ def _unit_keys(root: Path, folders: list[str], releases: dict[str, list], pdf: b
     return keys
 
 
-def _compute_unit(project: Project, sid: str, releases: list, pdf: bool, cache, key: dict | None) -> dict:
+def _compute_unit(project: Project, sid: str, releases: list, pdf: bool, cache, key: dict | None,
+                  step=None) -> dict:
     """Weigh, draw and render one system (:func:`system_unit`); keep it in the cache under ``key``.
 
     It is kept only if the system's files still have the hashes of ``key``:
     a file edited while the build ran must not be cached under its old content.
+    ``step(stage)`` is called as each of the three stages is done.
     """
     from dossier.engine import weigh_system
 
+    step = step if step is not None else (lambda stage: None)
     result = weigh_system(project.systems[sid], project.settings, project.logs.get(sid, ()), cache)
-    unit = system_unit(project, result, draw_figures(project, result, cache), releases, pdf)
+    step(STAGE_WEIGH)
+    drawn = draw_figures(project, result, cache)
+    step(STAGE_DRAW)
+    unit = system_unit(project, result, drawn, releases, pdf)
+    step(STAGE_RENDER)
     if cache is not None and key is not None:
         folder = project.root / "systems" / sid
         if (_digest(folder / "evidence.yaml"), _digest(folder / "log.csv")) == (key["evidence"], key["log"]):
@@ -819,14 +858,16 @@ def _unit_job(sid: str, system, logs: tuple, releases: list, key: dict) -> dict:
 
 
 def _compute_units(project: Project, todo: list[str], releases: dict[str, list], keys: dict[str, dict], pdf: bool,
-                   cache, workers: int | None, progress) -> dict[str, dict]:
+                   cache, workers: int | None, progress, report: BuildReport | None = None) -> dict[str, dict]:
     """The units of the systems in ``todo``, in that order: in this process, or over the CPU cores.
 
     A process pool (spawned, like :func:`render_pdfs`) pays off only for
     many systems, so ``workers=None`` uses one when there are at least
     :data:`PARALLEL_MIN`; each worker weighs, draws and renders whole
     systems, and the result is the same bytes whichever process made it.
-    ``progress(done, total)`` is called after each system.
+    ``progress(done, total)`` is called after each system; ``report`` (a
+    :class:`BuildReport`) is told of each stage of each system in this process,
+    and of all three at once as a worker finishes a system.
     """
     import os
 
@@ -835,9 +876,14 @@ def _compute_units(project: Project, todo: list[str], releases: dict[str, list],
         workers = (os.cpu_count() or 1) if total >= PARALLEL_MIN else 1
     workers = min(workers, total)
     done: dict[str, dict] = {}
+    report = report if report is not None else BuildReport()
+    for stage in SYSTEM_STAGES:
+        if total:
+            report.stage(stage, 0, total)
     if workers <= 1:
         for sid in todo:
-            done[sid] = _compute_unit(project, sid, releases.get(sid, []), pdf, cache, keys.get(sid))
+            step = functools.partial(lambda n, stage: report.stage(stage, n, total), len(done) + 1)
+            done[sid] = _compute_unit(project, sid, releases.get(sid, []), pdf, cache, keys.get(sid), step)
             if progress is not None:
                 progress(len(done), total)
         return done
@@ -852,6 +898,8 @@ def _compute_units(project: Project, todo: list[str], releases: dict[str, list],
                                releases.get(sid, []), keys.get(sid)): sid for sid in todo}
         for future in as_completed(futures):
             done[futures[future]] = future.result()
+            for stage in SYSTEM_STAGES:
+                report.stage(stage, len(done), total)
             if progress is not None:
                 progress(len(done), total)
     return {sid: done[sid] for sid in todo}
@@ -904,9 +952,67 @@ def _site_is_current(cache, out: Path, inputs: dict[str, str], pdf: bool) -> boo
     return _files_of(out) == record.get("files")
 
 
-def _record_site(cache, out: Path, inputs: dict[str, str], pdf: bool) -> None:
+def _record_site(cache, out: Path, inputs: dict[str, str], pdf: bool, counts: BuildCounts | None = None) -> None:
     where, made_of = _site_state(out, inputs, pdf)
-    cache.put_json("site-state", where, {"made_of": made_of, "files": _files_of(out)})
+    record = {"made_of": made_of, "files": _files_of(out)}
+    if counts is not None:  # for the summary of a later build that finds the site current
+        from dataclasses import asdict
+
+        record["counts"] = {k: v for k, v in asdict(counts).items() if k not in ("computed", "written")}
+    cache.put_json("site-state", where, record)
+
+
+def _recorded_counts(cache, out: Path, inputs: dict[str, str], pdf: bool) -> BuildCounts | None:
+    """What the site that :func:`_site_is_current` found current holds, as its build recorded it."""
+    where, _ = _site_state(out, inputs, pdf)
+    try:
+        return BuildCounts(**(cache.get_json("site-state", where) or {})["counts"], computed=0, written=False)
+    except (KeyError, TypeError):
+        return None
+
+
+#: The stages of a build, in order, as :class:`BuildReport` names them. The first three go system by system.
+STAGE_WEIGH, STAGE_DRAW, STAGE_RENDER = "weighing systems", "drawing figures", "rendering pages"
+STAGE_PDFS, STAGE_CATALOGUE = "rendering PDFs", "rendering the catalogue"
+STAGE_WRITE, STAGE_LINKS = "writing files", "checking links"
+SYSTEM_STAGES = (STAGE_WEIGH, STAGE_DRAW, STAGE_RENDER)
+STAGES = (*SYSTEM_STAGES, STAGE_PDFS, STAGE_CATALOGUE, STAGE_WRITE, STAGE_LINKS)
+
+
+@dataclass(frozen=True)
+class BuildCounts:
+    """What a built site holds: its systems (``computed`` of them by this build, the others from the cache),
+    HTML pages, PDFs and figures; ``written`` is false when the site was current and nothing was written."""
+
+    systems: int
+    pages: int
+    pdfs: int
+    figures: int
+    computed: int = 0
+    written: bool = True
+
+    @classmethod
+    def of(cls, systems: int, computed: int, pages: dict[str, str | bytes]) -> BuildCounts:
+        html = [text for rel, text in pages.items() if rel.endswith(".html")]
+        return cls(systems=systems, pages=len(html), pdfs=sum(rel.endswith(".pdf") for rel in pages),
+                   figures=sum(text.count('<figure id="figure-') for text in html), computed=computed)
+
+
+class BuildReport:
+    """What :func:`build` tells as it goes; this one listens to nothing (the command line's draws a bar per stage).
+
+    ``stage(name, done, total)``: a stage of :data:`STAGES` has ``done`` of
+    its ``total`` steps done; each stage that runs is first told with
+    ``done=0`` and last with ``done == total``. Stages with nothing to do are
+    not told of, and a build that finds its site current tells of none.
+    ``finished(counts)``: the site is built (:class:`BuildCounts`), or was current.
+    """
+
+    def stage(self, name: str, done: int, total: int) -> None:
+        pass
+
+    def finished(self, counts: BuildCounts) -> None:
+        pass
 
 
 def _load_systems(root: Path, folders: list[str], todo: list[str], folder_problems: list) -> Project:
@@ -939,7 +1045,7 @@ def _load_systems(root: Path, folders: list[str], todo: list[str], folder_proble
 
 
 def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_cache: bool = True,
-          workers: int | None = None, progress=None) -> Path:
+          workers: int | None = None, progress=None, report: BuildReport | None = None) -> Path:
     """Build the site of a project into ``out_dir``; return its index page.
 
     Every system gets its page, a PDF of it (unless ``pdf`` is false, for
@@ -958,6 +1064,10 @@ def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_ca
     ``workers`` processes (default: the CPU cores, when there are many
     systems); ``progress(done, total)`` is called as each is finished. The
     site is byte-identical whichever way it was made.
+
+    ``report`` (a :class:`BuildReport`) is told of each stage as it goes
+    (:data:`STAGES`), and at the end of what the site holds. Nothing here
+    reads the clock: the command line times the build.
     """
     from dossier.cache import Cache
     from dossier.release import all_releases, verify_releases
@@ -969,6 +1079,9 @@ def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_ca
     cache = Cache(root) if use_cache else None
     inputs = _input_hashes(root)
     if cache is not None and _site_is_current(cache, out, inputs, pdf):
+        counts = _recorded_counts(cache, out, inputs, pdf)
+        if report is not None and counts is not None:
+            report.finished(counts)
         return out.resolve() / "index.html"
     folders, folder_problems = system_folders(root)
     releases = {sid: found for sid, found in all_releases(root).items() if sid in folders}
@@ -980,12 +1093,15 @@ def build(project_dir: Path | str, out_dir: Path | str, pdf: bool = True, use_ca
     if altered:
         raise DossierError("the project's releases were altered, and releases are immutable: " + "; ".join(altered)
                            + ". Nothing was written. Fix: restore them (e.g. git checkout -- releases/).")
-    units.update(_compute_units(project, todo, releases, keys, pdf, cache, workers, progress))
+    units.update(_compute_units(project, todo, releases, keys, pdf, cache, workers, progress, report))
     pages = site_pages(project.settings, root, {sid: units[sid] for sid in folders}, releases, pdf=pdf,
-                       use_cache=use_cache)
-    write_site(out, pages, inputs)
+                       use_cache=use_cache, report=report)
+    counts = BuildCounts.of(len(folders), len(todo), pages)
+    write_site(out, pages, inputs, report)
     if cache is not None:
-        _record_site(cache, out, inputs, pdf)
+        _record_site(cache, out, inputs, pdf, counts)
+    if report is not None:
+        report.finished(counts)
     return out.resolve() / "index.html"
 
 

@@ -353,8 +353,11 @@ def test_what_changed_page_between_consecutive_releases(site):
     page = (site / "systems/heron-1/releases/2/changes.html").read_text()
     assert "From release 1 (2025-11-20T12:00:00Z) to release 2 (2026-11-24T12:00:00Z)" in page
     # the demo's story: a new search makes the claim of C doubtful; its source is added
-    assert '<tr class="change-changed"><td><code>C</code></td><td>changed</td><td>candidate' in page
-    assert '<tr class="change-added"><td><code>ao-2019</code></td><td>added</td>' in page
+    # each change in words, its raw key kept in a details element
+    assert ('<tr class="change-changed"><td>Grade of the claimed companion C<details class="raw-key"><summary>key'
+            '</summary><code>C</code></details></td><td>changed</td><td>candidate') in page
+    assert ('<tr class="change-added"><td>Source ao-2019<details class="raw-key"><summary>key</summary>'
+            '<code>ao-2019</code></details></td><td>added</td>') in page
     assert not (site / "systems/heron-1/releases/1/changes.html").exists()  # a first release has nothing before it
 
 

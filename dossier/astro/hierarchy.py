@@ -54,7 +54,6 @@ __all__ = [
     "photocentre_velocity",
     "rms_photocentre_velocity",
     "sample_thermal",
-    "seed_from",
     "sky_ratio",
     "stability_probability",
 ]

@@ -57,7 +57,6 @@ __all__ = [
     "sample_importance",
     "sample_mcmc",
     "sample_ofti",
-    "seed_from",
 ]
 
 ELEMENTS = ("P", "T", "e", "a", "i", "node", "omega")

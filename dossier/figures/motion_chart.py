@@ -11,12 +11,23 @@ is −2°, not 358°. Without a chosen model, only the θ and ρ panels are draw
 
 Position angles wrap at 360°. So that neither the points nor a curve jump
 across the panel when θ passes through north, θ is unwrapped along time:
-the measures start at the first (earliest) measure's value and each later
-one goes on the branch nearest its predecessor, or, when there is a chosen
-model, nearest the model at its time (the model is steadier than noisy
-measures a decade apart); each curve is unwrapped along itself and moved by
-whole turns to lie with the measures. The tick labels are the angles modulo
-360°, so a panel crossing north reads 350, 0, 10.
+the measures start at the first (earliest) kept measure's value and each
+later kept one goes on the branch nearest its predecessor, or, when there is
+a chosen model, nearest the model at its time (the model is steadier than
+noisy measures a decade apart); a flagged measure goes on the branch nearest
+the kept ones at its time, so that one wild angle cannot move every later
+measure by a turn; each curve is unwrapped along itself and moved by whole
+turns to lie with the measures.
+
+The θ axis keeps the unwrapped values and labels each tick with its angle
+modulo 360°. So that the labels still read in order, the ticks are
+multiples of a step that divides 360° (…, 1, 2, 2.5, 5, 10, 15, 20, 30, 45,
+60, 90, 180 or 360°, the smallest giving at most six ticks), never 25°, 50°
+or 100°: every multiple of 360° is then a tick, labelled 0, and the labels
+repeat cleanly each turn. A panel crossing north reads 300, 330, 0, 30; one
+spanning more than a turn reads 90, 180, 270, 0, 90, where the position of a
+label, not its text, says which turn it is on. (With steps of 100° the same
+panel read 100, 200, 300, 40, 140.)
 
 Measures flagged as outliers stay on the chart, drawn open with a red cross,
 as on the orbit chart; the key says "flagged (see log table)".
@@ -213,7 +224,7 @@ def build_motion_chart(
     flagged = np.asarray(series.flagged, dtype=bool)[order]
 
     model = next((c for c in curves if c.label == residual_model), None)
-    theta_shown, curve_theta = _unwrap_for_display(t, theta, curves, model)
+    theta_shown, curve_theta = _unwrap_for_display(t, theta, curves, model, flagged)
     residual_theta = residual_rho = None
     if model is not None:
         residual_theta, residual_rho = observed_minus_computed(t, theta, rho, model)
@@ -318,14 +329,27 @@ def _sorted_model(model: ModelCurve) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 
 def _unwrap_for_display(
-    t: np.ndarray, theta: np.ndarray, curves: Sequence[ModelCurve], model: ModelCurve | None
+    t: np.ndarray,
+    theta: np.ndarray,
+    curves: Sequence[ModelCurve],
+    model: ModelCurve | None,
+    flagged: np.ndarray | None = None,
 ) -> tuple[np.ndarray, list[np.ndarray]]:
     """θ of the measures and of each curve on continuous branches (see the module notes).
 
     Returns the measures' θ in the order of ``t`` (sorted) and each curve's
     θ in its own sample order.
     """
-    shown = np.unwrap(theta, period=360.0)  # the first value is kept as it is
+    kept = ~np.asarray(flagged, dtype=bool) if flagged is not None else np.ones(t.size, dtype=bool)
+    if kept.all() or not kept.any():
+        shown = np.unwrap(theta, period=360.0)  # the first value is kept as it is
+    else:
+        # The kept measures alone set the branches: a flagged quadrant slip
+        # (θ off by ~180°) would otherwise move every later measure by a turn.
+        path = np.unwrap(theta[kept], period=360.0)
+        at = np.interp(t, t[kept], path)
+        shown = at + wrap_residual(theta - at)
+        shown[kept] = path
     unwrapped = [_unwrap_curve(c) for c in curves]
     if model is not None:
         index = next(i for i, c in enumerate(curves) if c is model)
@@ -364,12 +388,65 @@ def _turns_to(ct: np.ndarray, ctheta: np.ndarray, t: np.ndarray, shown: np.ndarr
     return 360.0 * round(float(np.median(offset)) / 360.0)
 
 
-def _angle_ticks(ax: Axes) -> None:
-    """Label θ ticks modulo 360°: an unwrapped 365 reads 5."""
-    from matplotlib.ticker import FuncFormatter, MaxNLocator
+_FINE_STEPS = (1.0, 2.0, 2.5, 5.0)
+"""Tick steps of a θ axis below 10°, times a power of ten (≤ 1): each divides 360°."""
+_COARSE_STEPS = (10.0, 15.0, 20.0, 30.0, 45.0, 60.0, 90.0, 180.0, 360.0)
+"""Tick steps of a θ axis from 10° up: the round numbers that divide 360° (not 25, 50, 100)."""
+_MAX_ANGLE_TICKS = 6
 
-    ax.yaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 2.5, 3, 5, 10]))
-    ax.yaxis.set_major_formatter(FuncFormatter(lambda value, _: f"{value % 360.0:g}"))
+
+def angle_step(low: float, high: float) -> float:
+    """The step of the θ ticks between two (unwrapped) angles.
+
+    Parameters
+    ----------
+    low, high : float
+        The axis limits, degrees, any branch.
+
+    Returns
+    -------
+    float
+        Degrees: the smallest step that divides 360° (see the module notes)
+        and puts at most six ticks between the limits.
+    """
+    low, high = min(low, high), max(low, high)
+
+    def count(step: float) -> int:
+        return math.floor(high / step + 1e-9) - math.ceil(low / step - 1e-9) + 1
+
+    decade = 10.0 ** min(0, math.floor(math.log10(max(high - low, 1e-9) / _MAX_ANGLE_TICKS)))
+    for step in [m * decade * 10.0**k for k in (0, 1, 2) for m in _FINE_STEPS if m * decade * 10.0**k < 10.0] + [
+        *_COARSE_STEPS
+    ]:
+        if count(step) <= _MAX_ANGLE_TICKS:
+            return step
+    return 360.0 * math.ceil((high - low) / (360.0 * (_MAX_ANGLE_TICKS - 1)))  # many turns: whole turns
+
+
+def angle_label(value: float) -> str:
+    """The text of a θ tick: the angle modulo 360°, so an unwrapped 390 reads 30 and 360 reads 0."""
+    return f"{round(value % 360.0, 6) % 360.0:g}"
+
+
+def _angle_ticks(ax: Axes) -> None:
+    """θ ticks at multiples of :func:`angle_step`, labelled by :func:`angle_label` (see the module notes).
+
+    The ticks follow the limits at drawing time, so the limits may be set after this call.
+    """
+    from matplotlib.ticker import FuncFormatter, Locator
+
+    class AngleLocator(Locator):
+        def __call__(self) -> list[float]:
+            return self.tick_values(*self.axis.get_view_interval())
+
+        def tick_values(self, vmin: float, vmax: float) -> list[float]:
+            low, high = min(vmin, vmax), max(vmin, vmax)
+            step = angle_step(low, high)
+            first, last = math.ceil(low / step - 1e-9), math.floor(high / step + 1e-9)
+            return [k * step for k in range(first, last + 1)]
+
+    ax.yaxis.set_major_locator(AngleLocator())
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda value, _: angle_label(value)))
 
 
 # --- artists and limits -----------------------------------------------------------------

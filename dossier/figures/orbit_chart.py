@@ -15,6 +15,16 @@ by kind: an orbit (an ephemeris or a fit) solid, the straight line of an
 optical pair dashed, a quadratic (curved) fit dotted; the dash carries the
 kind, so the chart survives greyscale print, and the colour tells curves of
 the same kind apart.
+
+The frame always holds the primary, so a wide pair that has moved little
+(25″ away, 0.1″ of motion in a century) would show its whole path as one
+dot. When the measures span less than a tenth of the frame, an inset
+zooms on them: a square, east-left, north-up view of the measures and the
+curves about them, in the free part of the chart farthest from every point,
+with a scale bar of a round length (1, 2 or 5 × 10ⁿ arcsec) for its scale
+and a box round the zoomed area on the main chart, joined to the inset.
+The main chart, its key and its text alternative are unchanged; the inset
+draws the measures as the main chart does, on the same colour scale.
 """
 
 from __future__ import annotations
@@ -65,6 +75,12 @@ _FLAGGED_SIZE_PT2 = 42.0
 _COLORBAR_HEIGHT_IN = 0.12
 _MARGIN = 0.08
 """Space around the data inside the axes, as a fraction of the span."""
+_ZOOM_BELOW = 0.1
+"""An inset zooms on the measures when they span less than this fraction of the frame."""
+_INSET_SIZE = 0.4
+"""Side of the inset, as a fraction of the chart's side."""
+_INSET_MARGIN = 0.1
+"""Space around the measures inside the inset, as a fraction of their span."""
 
 
 @dataclass(frozen=True)
@@ -218,7 +234,11 @@ def build_orbit_chart(
         title_text = ax.set_title(title)
         legend = _legend(fig, curves, primary, secondary, kept.any(), flagged.any(), cmap)
         xs, ys = _all_points(east, north, curves)
-        common.compass(ax, xs, ys, {})  # in the corner farthest from every point
+        compass_box = common.compass(ax, xs, ys, {})  # in the corner farthest from every point
+        zoom = _zoom_limits(ax, east, north)
+        if zoom is not None:
+            _add_inset(ax, zoom, _inset_place(ax, xs, ys, compass_box), t, east, north, flagged, curves,
+                       cmap, norm)
         common.arrange(fig, ax, title=title_text, legend=legend, legend_side="right", square=True)
         if points is not None:
             _add_colorbar(fig, ax, legend, points)
@@ -256,6 +276,122 @@ def _set_limits(ax: Axes, east: np.ndarray, north: np.ndarray, curves: Sequence[
     # axis is inverted (common practice, as on the sky chart).
     ax.set_xlim(cx + half, cx - half)
     ax.set_ylim(cy - half, cy + half)
+
+
+def _zoom_limits(ax: Axes, east: np.ndarray, north: np.ndarray) -> tuple[float, float, float] | None:
+    """Centre (east, north) and half side of the inset, arcsec; ``None`` when the chart shows the path well.
+
+    The inset is drawn when the measures span (in their larger dimension)
+    less than :data:`_ZOOM_BELOW` of the frame, and span something: one
+    position alone is no path to zoom on.
+    """
+    if east.size < 2:
+        return None
+    extent = max(float(np.ptp(east)), float(np.ptp(north)))
+    frame = abs(float(np.diff(ax.get_xlim())[0]))
+    if extent <= 0 or extent >= _ZOOM_BELOW * frame:
+        return None
+    half = 0.5 * extent * (1.0 + 2.0 * _INSET_MARGIN)
+    return 0.5 * (east.min() + east.max()), 0.5 * (north.min() + north.max()), half
+
+
+def _inset_place(ax: Axes, xs: np.ndarray, ys: np.ndarray, compass_box: object) -> tuple[float, float]:
+    """Lower-left corner of the inset (axes fraction): the free place farthest from every point.
+
+    Nine places on a 3 × 3 grid are weighed by the distance from the nearest
+    point (measure, curve or primary) to the inset's edge; places that
+    would cover the compass are passed over. Ties go to the first place,
+    so the choice is deterministic.
+    """
+    points = ax.transLimits.transform(np.column_stack([xs, ys]))
+    size, edge = _INSET_SIZE, 0.04
+    spots = [edge, 0.5 - size / 2, 1.0 - edge - size]
+    places = [(x0, y0) for y0 in reversed(spots) for x0 in spots]
+
+    def room(place: tuple[float, float]) -> float:
+        x0, y0 = place
+        dx = np.maximum.reduce([x0 - points[:, 0], np.zeros(len(points)), points[:, 0] - (x0 + size)])
+        dy = np.maximum.reduce([y0 - points[:, 1], np.zeros(len(points)), points[:, 1] - (y0 + size)])
+        return round(float(np.min(np.hypot(dx, dy))), 6)
+
+    def clear(place: tuple[float, float]) -> bool:
+        x0, y0 = place
+        return not (x0 < compass_box.x1 and compass_box.x0 < x0 + size
+                    and y0 < compass_box.y1 and compass_box.y0 < y0 + size)
+
+    free = [p for p in places if clear(p)] or places
+    return max(free, key=room)
+
+
+def _scale_length(span: float) -> float:
+    """A round length (1, 2 or 5 × 10ⁿ arcsec) of at most a quarter of ``span``."""
+    target = 0.25 * span
+    power = 10.0 ** math.floor(math.log10(target))
+    return max(m * power for m in (1.0, 2.0, 5.0) if m * power <= target)
+
+
+def _add_inset(
+    ax: Axes,
+    zoom: tuple[float, float, float],
+    place: tuple[float, float],
+    t: np.ndarray,
+    east: np.ndarray,
+    north: np.ndarray,
+    flagged: np.ndarray,
+    curves: Sequence[ChartCurve],
+    cmap: Colormap,
+    norm: Normalize,
+) -> Axes:
+    """The zoomed view of the measures (see the module notes), labelled ``"zoom"``."""
+    cx, cy, half = zoom
+    inset = ax.inset_axes((place[0], place[1], _INSET_SIZE, _INSET_SIZE), label="zoom", zorder=8)
+    inset.set_xlim(cx + half, cx - half)  # east to the left, as on the main chart
+    inset.set_ylim(cy - half, cy + half)
+    inset.set_aspect("equal", adjustable="box")
+    inset.set_xticks([])
+    inset.set_yticks([])
+    inset.set_facecolor(common.BACKGROUND)
+    for spine in inset.spines.values():
+        spine.set_edgecolor(common.INK_MUTED)
+    for index, curve in enumerate(curves):
+        inset.plot(np.asarray(curve.y_east, dtype=float), np.asarray(curve.x_north, dtype=float),
+                   color=CURVE_COLOURS[index % len(CURVE_COLOURS)], zorder=2, label=f"curve {curve.label}",
+                   **KIND_STYLE[curve.kind])
+    kept = ~flagged
+    if kept.any():
+        inset.scatter(east[kept], north[kept], c=t[kept], cmap=cmap, norm=norm, s=_POINT_SIZE_PT2, marker="o",
+                      edgecolors=common.BACKGROUND, linewidths=0.6, zorder=4, label="measures")
+    if flagged.any():
+        ring = inset.scatter(east[flagged], north[flagged], c=t[flagged], cmap=cmap, norm=norm,
+                             s=_FLAGGED_SIZE_PT2, marker="o", linewidths=1.4, zorder=4.5, label="flagged")
+        ring.set_facecolor("none")
+        ring.set_edgecolor(None)
+        inset.plot(east[flagged], north[flagged], linestyle="none", marker="x", markersize=4.2,
+                   markeredgewidth=1.2, color=common.DISCORDANT, zorder=5, label="flagged crosses")
+    _scale_bar(inset, east, north, 2.0 * half)
+    ax.indicate_inset_zoom(inset, edgecolor=common.INK_MUTED, alpha=0.9)
+    return inset
+
+
+def _scale_bar(inset: Axes, east: np.ndarray, north: np.ndarray, span: float) -> None:
+    """A bar of round length, labelled in arcsec, in the inset's corner farthest from the measures."""
+    length = _scale_length(span)
+    points = inset.transLimits.transform(np.column_stack([east, north]))
+    bar = length / span  # axes fraction
+    corners = {  # left end of the bar, axes fraction; the label sits above it
+        "lower right": (0.95 - bar, 0.06), "lower left": (0.05, 0.06),
+        "upper right": (0.95 - bar, 0.86), "upper left": (0.05, 0.86),
+    }
+
+    def room(corner: tuple[float, float]) -> float:
+        centre = (corner[0] + bar / 2, corner[1] + 0.04)
+        return round(float(np.min(np.hypot(points[:, 0] - centre[0], points[:, 1] - centre[1]))), 6)
+
+    x0, y0 = corners[max(corners, key=lambda name: room(corners[name]))]
+    inset.plot([x0, x0 + bar], [y0, y0], transform=inset.transAxes, color=common.INK, linewidth=1.6,
+               solid_capstyle="butt", zorder=6, label="scale bar")
+    inset.text(x0 + bar / 2, y0 + 0.025, f"{common.format_number(length, 1, 0)}″", transform=inset.transAxes,
+               ha="center", va="bottom", fontsize=7.5, color=common.INK, zorder=6, label="scale")
 
 
 def _all_points(east: np.ndarray, north: np.ndarray, curves: Sequence[ChartCurve]) -> tuple[np.ndarray, np.ndarray]:

@@ -6,7 +6,7 @@ import re
 from functools import lru_cache
 from pathlib import Path
 
-from dossier.fmt import fmt_log10, fmt_number, fmt_probability
+from dossier.fmt import decimals_for, fmt_fixed, fmt_log10, fmt_number, fmt_probability
 from dossier.render.terms import labelled
 from dossier.rules.base import OUTCOME_WORDS
 
@@ -32,11 +32,24 @@ def fmt_quantity(q, limit: float | None = None) -> str:
         return "—"
     if limit is not None and q.label.startswith("P(") and not q.unit and q.uncertainty is None:
         return fmt_probability(q.value, limit)
-    text = fmt_number(q.value)
-    if q.uncertainty is not None:
-        text += f" ± {fmt_number(q.uncertainty, 2)}"
-    if q.low is not None and q.high is not None:
-        text += f" ({fmt_number(q.low)}–{fmt_number(q.high)})"
+    # the value at the precision its uncertainty (or the narrower half of its interval) sets, the
+    # uncertainty to two significant figures (common practice): "2457137.6 ± 3.4", never "2.457e+06 ± 3.4"
+    spread = q.uncertainty
+    if spread is None and q.low is not None and q.high is not None:
+        spread = min(abs(q.value - q.low), abs(q.high - q.value))
+    decimals = decimals_for(spread) if spread is not None else None
+    if decimals is None:
+        text = fmt_number(q.value)
+        if q.uncertainty is not None:
+            text += f" ± {fmt_number(q.uncertainty, 2)}"
+        if q.low is not None and q.high is not None:
+            text += f" ({fmt_number(q.low)}–{fmt_number(q.high)})"
+    else:
+        text = fmt_fixed(q.value, decimals)
+        if q.uncertainty is not None:
+            text += f" ± {fmt_fixed(q.uncertainty, decimals)}"
+        if q.low is not None and q.high is not None:
+            text += f" ({fmt_fixed(q.low, decimals)} to {fmt_fixed(q.high, decimals)})"
     if q.unit:
         text += f" {q.unit}"
     return text

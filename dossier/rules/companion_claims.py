@@ -71,6 +71,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import binary, hierarchy
+from dossier.astro.seeding import seed_from
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts, julian_years
 
@@ -162,7 +163,7 @@ def detectability(facts: SystemFacts, subject: str, host: str | None, d: Detecti
     s_rho = claim.rho.uncertainty if claim is not None and claim.rho is not None else 0.0
     s_dm = claim.delta_mag.uncertainty if claim is not None and claim.delta_mag is not None else 0.0
     t_search = float(julian_years([nd.epoch])[0])
-    rng = np.random.default_rng(hierarchy.seed_from(subject, host, d.rho, s_rho, d.delta_mag, s_dm, d.band, d.year,
+    rng = np.random.default_rng(seed_from(subject, host, d.rho, s_rho, d.delta_mag, s_dm, d.band, d.year,
                                                     nd.rho_range, nd.contrast, nd.band, t_search, n))
     rho0 = _draw(rng, d.rho, s_rho, n, True)
     lo, hi = nd.rho_range

@@ -27,6 +27,7 @@ from functools import cached_property
 import numpy as np
 
 from dossier.astro import angles, distance
+from dossier.astro.seeding import seed_from
 from dossier.cache import Cache
 from dossier.schema.models import Astrometry, Measured, System
 from dossier.schema.settings import Settings
@@ -373,7 +374,7 @@ class SystemFacts:
                     orbit.periastron_time, orbit.eccentricity, orbit.semimajor_axis, orbit.inclination, orbit.node,
                     orbit.periastron_argument))
                 elements = ((orbit.period_years, orbit.period_years_error), *el)
-                seed = hierarchy.seed_from(cid, inner.id, t, m1, s1, m2, s2, dm, sdm, *np.ravel(elements))
+                seed = seed_from(cid, inner.id, t, m1, s1, m2, s2, dm, sdm, *np.ravel(elements))
                 ve, vn, se, sn = hierarchy.photocentre_velocity_draws(np.random.default_rng(seed), 4000, t, (m1, s1),
                                                                       (m2, s2), (dm, sdm), elements)
                 ex, ey = math.hypot(motion.pmra_error, se), math.hypot(motion.pmdec_error, sn)
@@ -814,7 +815,7 @@ def published_posterior(orbit, parallax: tuple[float, float] | None, n: int = VI
     from dossier.astro import orbit_posterior as op
 
     values, sigmas = published_elements(orbit)
-    seed = op.seed_from("published", values, sigmas, orbit.ref, parallax)
+    seed = seed_from("published", values, sigmas, orbit.ref, parallax)
     return op.OrbitPosterior.from_published(values, sigmas, n, seed,
                                             parallax_mas=None if parallax is None else parallax[0],
                                             sigma_parallax_mas=0.0 if parallax is None else parallax[1])

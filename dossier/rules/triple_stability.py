@@ -38,6 +38,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import binary, hierarchy
+from dossier.astro.seeding import seed_from
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -118,7 +119,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         inputs = (settings.seed, subject, inner_id, m_in[:2], m_out[:2], inner_f.rho_arcsec, outer.rho_arcsec,
                   dist, None if inner_orbit is None else inner_orbit.model_dump_json(),
                   None if outer_orbit is None else outer_orbit.model_dump_json())
-        rng = np.random.default_rng(hierarchy.seed_from(*inputs))
+        rng = np.random.default_rng(seed_from(*inputs))
         n = settings.samples
         mi = _draw_positive(rng, m_in[0], m_in[1], n)
         mo = _draw_positive(rng, m_out[0], m_out[1], n)

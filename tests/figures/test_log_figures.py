@@ -383,7 +383,7 @@ def test_theta_crossing_north_plots_continuously(residual_model):
     fig.canvas.draw()
     labels = [tick.get_text() for tick in ax.get_yticklabels() if tick.get_text()]
     assert labels and all(0.0 <= float(text) < 360.0 for text in labels)
-    assert "340" in labels and "0" in labels
+    assert any(float(text) >= 300.0 for text in labels) and "0" in labels  # e.g. 350, 0, 10
 
 
 def test_theta_of_the_first_measure_is_kept_without_a_model():
@@ -437,3 +437,108 @@ def test_residual_panels_scale_to_the_kept_measures():
     fig = build_motion_chart(series, CURVES, title="t", residual_model="orbit fit")
     low, high = panel(fig, "theta residual").get_ylim()
     assert high < 90 and low > -90
+
+
+# --- wide pairs and long paths (issue: a θ axis reading 100, 200, 300, 40, 140; a path drawn as a dot) -------
+
+
+def test_theta_ticks_divide_the_turn_on_a_path_through_north():
+    # Like heron-1 Ba-Bb (demo_project/systems/heron-1/log.csv): θ runs 240° → 360° → 140° over a century,
+    # 260° of unwrapped angle. Steps of 100° labelled 100, 200, 300, 40, 140; a step that divides 360°
+    # puts a tick on north, and every label is its position modulo 360.
+    t = np.linspace(1900.0, 2000.0, 21)
+    theta = (240.0 + 260.0 * (t - 1900.0) / 100.0) % 360.0
+    series = MotionSeries(list(t), list(theta), [0.3] * t.size, [1.0] * t.size, [0.01] * t.size, [False] * t.size)
+    fig = build_motion_chart(series, [], title="t", residual_model=None)
+    ax = panel(fig, "theta")
+    fig.canvas.draw()
+    low, high = ax.get_ylim()
+    ticks = [(tick.get_loc(), tick.label1.get_text()) for tick in ax.yaxis.get_major_ticks()
+             if low <= tick.get_loc() <= high]
+    positions = np.array([p for p, _ in ticks])
+    step = float(np.diff(positions)[0])
+    np.testing.assert_allclose(np.diff(positions), step)
+    assert math.isclose(360.0 % step, 0.0, abs_tol=1e-9) and step >= 10.0
+    for position, text in ticks:
+        assert math.isclose(position % step, 0.0, abs_tol=1e-9) or math.isclose(position % step, step)
+        assert math.isclose(float(text), position % 360.0, abs_tol=1e-9), (position, text)
+        assert math.isclose(float(text) % step, 0.0, abs_tol=1e-9) or math.isclose(float(text) % step, step)
+    assert any(math.isclose(p, 360.0) for p in positions) and "0" in [text for _, text in ticks]
+    assert low < 240.0 and high > 500.0  # unwrapped: one continuous path
+
+
+@pytest.mark.parametrize("low,high,step", [(225.0, 512.0, 60.0), (-20.0, 20.0, 10.0), (129.5, 131.5, 0.5),
+                                           (0.0, 1000.0, 180.0), (240.0, 300.0, 15.0)])
+def test_angle_step_divides_360(low, high, step):
+    from dossier.figures.motion_chart import angle_step
+
+    assert angle_step(low, high) == step
+    assert math.isclose(360.0 / step, round(360.0 / step))
+
+
+def test_a_flagged_angle_does_not_move_later_measures_by_a_turn():
+    # heron-1 Ba-Bb has a flagged 86.56° among measures near 265° (a quadrant slip): without a model,
+    # unwrapping through it put every later measure a turn below the earlier ones.
+    series = MotionSeries([1900.0, 1904.0, 1906.0, 1910.0], [262.0, 86.0, 269.0, 273.0], [0.3] * 4, [1.0] * 4,
+                          [0.01] * 4, [False, True, False, False])
+    fig = build_motion_chart(series, [], title="t", residual_model=None)
+    ax = panel(fig, "theta")
+    _, kept = plotted(ax, "measures")
+    _, flagged = plotted(ax, "flagged")
+    np.testing.assert_allclose(kept, [262.0, 269.0, 273.0])
+    assert math.isclose(flagged[0] % 360.0, 86.0) and abs(flagged[0] - 266.0) <= 180.0
+
+
+def _wide_pair() -> list[ChartMeasure]:
+    """Like heron-1 AB: 25″ from the primary at θ ≈ 130°, moving about 0.1″ in 124 years."""
+    t = np.linspace(1899.8, 2023.9, 12)
+    theta = 130.8 - 0.004 * (t - 1899.8)
+    rho = 25.0 + 0.0008 * (t - 1899.8)
+    north, east = to_offsets(theta, rho)
+    return [ChartMeasure(float(a), float(n), float(e), i == 3, "poor" if i == 3 else None)
+            for i, (a, n, e) in enumerate(zip(t, north, east))]
+
+
+def test_a_tiny_path_far_from_the_primary_gets_a_zoomed_inset():
+    measures = _wide_pair()
+    east = np.array([m.y_east for m in measures])
+    north = np.array([m.x_north for m in measures])
+    extent = max(np.ptp(east), np.ptp(north))
+    assert extent < 0.05 * math.hypot(east.mean(), north.mean())
+    line = ChartCurve("straight-line fit", [north[0], north[-1]], [east[0], east[-1]], "linear")
+    fig = build_orbit_chart(measures, [line], title="t", primary="A", secondary="B")
+    ax = fig.axes[0]
+    # The main chart is as before: the primary, every measure, the key.
+    assert ax.get_xlim()[1] < 0.0 < ax.get_xlim()[0] and ax.get_ylim()[0] < 0.0 < ax.get_ylim()[1]
+    assert by_label(ax.collections, "measures").get_offsets().shape[0] == 11
+    zoom = by_label(ax.child_axes, "zoom")
+    left, right = zoom.get_xlim()
+    bottom, top = zoom.get_ylim()
+    assert left > right  # east to the left here too
+    assert right < east.min() and east.max() < left and bottom < north.min() and north.max() < top
+    # The path spans most of the zoomed view.
+    assert extent > 0.75 * (left - right) and math.isclose(left - right, top - bottom)
+    np.testing.assert_array_equal(by_label(zoom.collections, "measures").get_offsets(),
+                                  [(m.y_east, m.x_north) for m in measures if not m.flagged])
+    assert by_label(zoom.collections, "flagged").get_offsets().shape[0] == 1
+    by_label(zoom.lines, "curve straight-line fit")
+    # Its scale: a bar of round length, labelled in arcsec, at most a quarter of the view.
+    bar = by_label(zoom.lines, "scale bar")
+    length = float(np.ptp(bar.get_xdata())) * (left - right)
+    assert math.isclose(length, float(by_label(zoom.texts, "scale").get_text().rstrip("″")))
+    assert length <= 0.25 * (left - right)
+    # The inset covers neither the measures nor the primary on the main chart.
+    x0, y0, x1, y1 = zoom.get_position().extents  # figure fraction, after the layout
+    for x, y in [(0.0, 0.0), *zip(east, north)]:
+        fx, fy = fig.transFigure.inverted().transform(ax.transData.transform((x, y)))
+        assert not (x0 <= fx <= x1 and y0 <= fy <= y1)
+    # Deterministic, with the text alternative of before.
+    svg = orbit_chart(measures, [line], title="t", primary="A", secondary="B")
+    assert svg == orbit_chart(measures, [line], title="t", primary="A", secondary="B")
+    assert by_label(zoom.texts, "scale").get_text() in svg_texts(svg)
+
+
+def test_a_path_that_fills_the_chart_gets_no_inset():
+    for measures in (MEASURES, OPTICAL_MEASURES, OPTICAL_MEASURES[:1]):
+        fig = build_orbit_chart(measures, [], title="t", primary="A", secondary="B")
+        assert not fig.axes[0].child_axes
