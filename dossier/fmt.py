@@ -89,3 +89,51 @@ def fmt_fixed(value: float, decimals: int) -> str:
     """A number with fixed decimals and a true minus sign (U+2212), never in e-notation."""
     text = f"{value:.{decimals}f}"
     return "\u2212" + text[1:] if text.startswith("-") else text
+
+
+MINUS = "\u2212"  #: the true minus sign; a hyphen is not one (typographic practice, Unicode U+2212)
+
+
+def fmt_sig(value: float | None, digits: int = 3) -> str:
+    """A number with ``digits`` significant figures in fixed notation and a true minus sign: '13800', '0.0031'.
+
+    For the text people read (explanations), where '1.38e+04' is markup, not a number. Fixed notation for
+    |value| in [1e-6, 1e12); beyond that a power of ten with superscripts, '3.2 × 10⁻⁸'. '—' for none or
+    not finite. Trailing zeros after the point are dropped, as ``:g`` drops them.
+    """
+    if value is None or not math.isfinite(value):
+        return "—"
+    if value == 0:
+        return "0"
+    size = abs(value)
+    rounded = float(f"{size:.{digits - 1}e}")  # the rounding decides the magnitude: 9.996 -> 10.0
+    if 1e-6 <= rounded < 1e12:
+        decimals = max(0, digits - 1 - int(math.floor(math.log10(rounded))))
+        text = f"{rounded:.{decimals}f}"
+        if "." in text:
+            text = text.rstrip("0").rstrip(".")
+    else:
+        mantissa, exponent = f"{rounded:.{digits - 1}e}".split("e")
+        if "." in mantissa:
+            mantissa = mantissa.rstrip("0").rstrip(".")
+        text = f"{mantissa} × 10{superscript(int(exponent))}"
+    return (MINUS + text) if value < 0 else text
+
+
+def fmt_signed(value: float, decimals: int = 2) -> str:
+    """A signed number with fixed decimals, '+0.66' or '−0.46', with a true minus sign (never e-notation)."""
+    text = f"{value:+.{decimals}f}"
+    return text.replace("-", MINUS)
+
+
+_SUPERSCRIPT = str.maketrans("0123456789-+.", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺·")
+
+
+def superscript(exponent: int | float | str) -> str:
+    """An exponent as superscript characters, '⁻⁸' or '³·⁸', so that 10 to a power reads without markup."""
+    return str(exponent).translate(_SUPERSCRIPT)
+
+
+def plural(n: int, word: str, plural: str | None = None) -> str:
+    """'1 detection', '2 detections', '0 searches' (``plural`` when adding 's' is wrong: 'search', 'searches')."""
+    return f"{n} {word if n == 1 else (plural or word + 's')}"

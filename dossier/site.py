@@ -121,33 +121,6 @@ def _rule_sections(result: SystemResult, figures: list[Figure] = ()) -> list[Rul
     return out
 
 
-def _assumptions(project: Project) -> list[tuple[str, str, str]]:
-    """(where, setting, value) for every setting the verdicts depend on."""
-    from dossier.rules.registry import RULES, rule_settings
-
-    rows = []
-    for name, field in type(project.settings.verdict).model_fields.items():
-        rows.append(("verdict", name, str(getattr(project.settings.verdict, name))))
-    for name in type(project.settings.pair_model).model_fields:
-        rows.append(("pair model", name, _setting_text(getattr(project.settings.pair_model, name))))
-    for rule in RULES:
-        values = rule_settings(project.settings.rules, rule)
-        for name in type(values).model_fields:
-            rows.append((rule.id, name, str(getattr(values, name))))
-    return rows
-
-
-def _setting_text(value) -> str:
-    """A setting as it reads in dossier.toml terms: models as their fields, tuples as lists."""
-    if hasattr(value, "model_dump"):
-        value = value.model_dump()
-    if isinstance(value, (tuple, list)):
-        return "[" + ", ".join(_setting_text(v) for v in value) + "]"
-    if isinstance(value, dict):
-        return "{" + ", ".join(f"{k} = {_setting_text(v)}" for k, v in value.items()) + "}"
-    return str(value)
-
-
 @dataclass(frozen=True)
 class LogSection:
     """One pair's observing log on a system page."""
@@ -243,6 +216,7 @@ def system_unit(project: Project, result: SystemResult, drawn: dict, releases: l
     from dossier.exports import pair_rows
     from dossier.provenance import cited_sources, prov_json, provenance_rows
     from dossier.render.catalogue import search_text
+    from dossier.render.settings_table import settings_sections
     from dossier.render.terms import ODDS, uses
     from dossier.report import join_systems_json, system_dict, system_json_item
     from dossier.rules.verdict import strongest
@@ -272,7 +246,7 @@ def system_unit(project: Project, result: SystemResult, drawn: dict, releases: l
                           if a.rule in ("luminosity", "coevality", "space-velocity", "neighbours", "closest-approach")
                           and a.outcome != "insufficient"],
         grades=[a for a in result.assessments if a.grade is not None],
-        assumptions=_assumptions(project),
+        settings_sections=settings_sections(project.settings),
         history=history,
         strongest={p.id: strongest(result.verdicts[p.id].contributions, result.verdicts[p.id].status)
                    for p in result.system.pairs},

@@ -220,7 +220,14 @@ def _marcum_q(a: NDArray, b: NDArray) -> NDArray:
 
             sf = ncx2.sf
         _NCX2_SF = sf
-    return _NCX2_SF(b * b, 2.0, a * a)
+    a, b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(b, dtype=float))
+    # Near b = 0 the survival function is 1 minus a tiny CDF, which the CDF gives accurately, while
+    # Boost's series overflows its gamma function there for a large noncentrality (found by hypothesis).
+    small = b < 1e-2
+    out = np.empty(a.shape)
+    out[small] = 1.0 - special.chndtr(b[small] ** 2, 2.0, a[small] ** 2)
+    out[~small] = _NCX2_SF(b[~small] ** 2, 2.0, a[~small] ** 2)
+    return out
 
 
 _NCX2_SF = None

@@ -6,7 +6,7 @@ import re
 from functools import lru_cache
 from pathlib import Path
 
-from dossier.fmt import decimals_for, fmt_fixed, fmt_log10, fmt_number, fmt_probability
+from dossier.fmt import MINUS, decimals_for, fmt_fixed, fmt_log10, fmt_number, fmt_probability, fmt_sig
 from dossier.render.terms import labelled
 from dossier.rules.base import OUTCOME_WORDS
 
@@ -20,6 +20,15 @@ def templates_dir() -> Path:
         if (candidate / "system.html").is_file():
             return candidate
     raise FileNotFoundError("the page templates are missing from this installation; reinstall dossier")
+
+
+def page_number(value: float | None, digits: int = 4) -> str:
+    """:func:`dossier.fmt.fmt_number` for a page: never e-notation ('3.2 × 10⁻⁸' beyond fixed notation's
+    range, see :func:`dossier.fmt.fmt_sig`), and a true minus sign."""
+    text = fmt_number(value, digits)
+    if "e" in text:
+        text = fmt_sig(value, digits)
+    return MINUS + text[1:] if text.startswith("-") else text
 
 
 def fmt_quantity(q, limit: float | None = None) -> str:
@@ -39,11 +48,11 @@ def fmt_quantity(q, limit: float | None = None) -> str:
         spread = min(abs(q.value - q.low), abs(q.high - q.value))
     decimals = decimals_for(spread) if spread is not None else None
     if decimals is None:
-        text = fmt_number(q.value)
+        text = page_number(q.value)
         if q.uncertainty is not None:
-            text += f" ± {fmt_number(q.uncertainty, 2)}"
+            text += f" ± {page_number(q.uncertainty, 2)}"
         if q.low is not None and q.high is not None:
-            text += f" ({fmt_number(q.low)}–{fmt_number(q.high)})"
+            text += f" ({page_number(q.low)} to {page_number(q.high)})"
     else:
         text = fmt_fixed(q.value, decimals)
         if q.uncertainty is not None:
@@ -77,10 +86,43 @@ def fmt_derived(row, limit: float | None = None) -> str:
         return "—"
     if limit is not None and _PROBABILITY_FIELD.search(row.field) and not row.unit and row.uncertainty is None:
         return fmt_probability(row.value, limit)
-    text = fmt_number(row.value)
+    text = page_number(row.value)
     if row.uncertainty is not None:
-        text += f" ± {fmt_number(row.uncertainty, 2)}"
+        text += f" ± {page_number(row.uncertainty, 2)}"
     return f"{text} {row.unit}"
+
+
+def _as_written(value: float) -> str:
+    """A measured number with the digits it was given (Python's shortest repr), a true minus sign, no e-notation."""
+    text = repr(float(value)) if not isinstance(value, int) else str(value)
+    if "e" in text or "E" in text:
+        text = fmt_sig(float(value), 6)
+    if text.endswith(".0") and isinstance(value, int):
+        text = text[:-2]
+    return MINUS + text[1:] if text.startswith("-") else text
+
+
+_SPLIT_UNIT = re.compile(r"^(?P<value>[^(]+?)\s*\(uncertainty in (?P<error>[^)]+)\)$")
+
+
+def fmt_measured_row(row) -> str:
+    """A measured value of the provenance table as its source gave it: '201.3171123° ± 0.06 mas' (each part in
+    its own unit where the schema gives two), '−39.6 ± 0.7 mas/yr'."""
+    if row.value is None:
+        return "—"
+    unit = row.unit or ""
+    split = _SPLIT_UNIT.match(unit)
+    value_unit, error_unit = (split["value"], split["error"]) if split else (unit, unit)
+    value_unit = "°" if value_unit == "deg" else value_unit
+    error_unit = "°" if error_unit == "deg" else error_unit
+    sep = "" if value_unit == "°" else " "
+    text = f"{_as_written(row.value)}{sep}{value_unit}".rstrip() if split else _as_written(row.value)
+    if row.uncertainty is not None:
+        esep = "" if error_unit == "°" else " "
+        text += f" ± {_as_written(row.uncertainty)}" + (f"{esep}{error_unit}" if split else "")
+    if not split and unit:
+        text += f" {unit}"
+    return text
 
 
 def fmt_strength(value: float | None) -> str:
@@ -94,7 +136,7 @@ def fmt_strength(value: float | None) -> str:
 def fmt_measured(m) -> str:
     if m is None:
         return "—"
-    return f"{fmt_number(m.value)} ± {fmt_number(m.uncertainty, 2)}"
+    return f"{page_number(m.value)} ± {page_number(m.uncertainty, 2)}"
 
 
 @lru_cache(maxsize=1)
@@ -114,6 +156,7 @@ def environment():
         labelled=labelled,  # {{ p | labelled("P(bound)", model_limit) }}
         log10=lambda x: fmt_log10(x, minus="−"),
         number=fmt_number,
+        measured_row=fmt_measured_row,
         quantity=fmt_quantity,  # {{ q | quantity(model_limit) }}
         derived=fmt_derived,
         strength=fmt_strength,

@@ -38,6 +38,7 @@ from pydantic import Field
 
 from dossier.astro import chance
 from dossier.astro.binary import python_square
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import OUTCOME_CODES, OUTCOME_NAMES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -165,12 +166,12 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     outcome = int(k["outcome"][0])
     if outcome == OUTCOME_CODES["insufficient"]:
         return RULE.insufficient(subject, f"No expected number of unrelated stars within ρ = "
-                                 f"{pair.rho_arcsec:.2f}″: the separation is zero, or it or the companion's "
+                                 f"{fmt_fixed(pair.rho_arcsec, 2)}″: the separation is zero, or it or the companion's "
                                  "magnitude is not a number.")
     density_deg, lam, p = float(k["density"][0]), float(k["expected"][0]), float(k["p_chance"][0])
     strength = float(k["strength"][0])
-    text = (f"With {density_deg:.3g} stars per square degree brighter than {band} = {mag:.2f}, an unrelated star "
-            f"within {pair.rho_arcsec:.2f}″ has probability {p:.2g}; physical companions are {10**strength:.2g} times "
+    text = (f"With {fmt_sig(density_deg, 3)} stars per square degree brighter than {band} = {fmt_fixed(mag, 2)}, an unrelated star "
+            f"within {fmt_fixed(pair.rho_arcsec, 2)}″ has probability {fmt_sig(p, 2)}; physical companions are {fmt_sig(10**strength, 2)} times "
             "as dense as optical ones at this separation.")
     if bool(k["extrapolated"][0]):
         text += " The density was extrapolated beyond the table."
@@ -180,7 +181,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         subject, OUTCOME_NAMES[outcome + 2], text, strength=strength,
         statistic=Quantity("p_chance", "P(chance alignment)", p, "", p_err),
         quantities=(
-            Quantity("density", f"Field stars brighter than {band} = {mag:.2f}", density_deg, "deg⁻²",
+            Quantity("density", f"Field stars brighter than {band} = {fmt_fixed(mag, 2)}", density_deg, "deg⁻²",
                      float(k["density_uncertainty"][0])),
             Quantity("expected", "Expected unrelated stars within ρ (λ)", lam, "",
                      float(k["expected_uncertainty"][0])),

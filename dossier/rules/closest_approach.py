@@ -25,6 +25,7 @@ import math
 
 from pydantic import Field
 
+from dossier.fmt import fmt_fixed
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -77,16 +78,16 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         Quantity("speed", "Speed relative to the Sun", float(v.median), "km/s", low=float(v.p16), high=float(v.p84)),
     ]
     when = "from now" if t.median > 0 else "ago"
-    text = (f"On straight-line motion the system passes the Sun {abs(float(t.median)):.2f} Myr {when} "
-            f"(16–84 %: {float(t.p16):.2f} to {float(t.p84):.2f} Myr) at {float(d.median):.1f} pc "
-            f"({float(d.p16):.1f}–{float(d.p84):.1f})")
+    text = (f"On straight-line motion the system passes the Sun {fmt_fixed(abs(float(t.median)), 2)} Myr {when} "
+            f"(16–84 %: {fmt_fixed(float(t.p16), 2)} to {fmt_fixed(float(t.p84), 2)} Myr) at {fmt_fixed(float(d.median), 1)} pc "
+            f"({fmt_fixed(float(d.p16), 1)}–{fmt_fixed(float(d.p84), 1)})")
     mag = combined_magnitude(facts, settings.band)
     if mag is not None:
         d_now = 1000.0 / star.parallax.mean
         peak = float(kinematics.peak_magnitude(mag[0], d_now, float(d.median)))
         quantities.append(Quantity("peak_magnitude", f"Peak combined {settings.band} magnitude", peak, "mag",
                                    how=f"light of {', '.join(mag[1])}"))
-        text += f", when it shines at {settings.band} = {peak:.2f} (now {mag[0]:.2f})"
+        text += f", when it shines at {settings.band} = {fmt_fixed(peak, 2)} (now {fmt_fixed(mag[0], 2)})"
     text += ". The linear approximation ignores the Galaxy's gravity and is biased for distant encounters."
     return RULE.assessment(subject, "neutral", text, quantities=tuple(quantities),
                            sources=tuple(dict.fromkeys(r for r in (star.motion.ref, rv.ref) if r)))

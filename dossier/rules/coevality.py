@@ -35,6 +35,7 @@ import math
 
 from pydantic import Field
 
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -76,7 +77,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     missing = [m for m, iv in zip(pair.members, (first, second)) if not iv]
     if missing:
         return RULE.insufficient(subject, f"No star of {' or '.join(missing)} has both a mass and a stage.")
-    lines = [f"{cid} ({stage}, {m:.2f} M☉): {low:.4g}–{high:.4g} Myr" for cid, stage, m, low, high in first + second]
+    lines = [f"{cid} ({stage}, {fmt_fixed(m, 2)} M☉): {fmt_sig(low, 4)}–{fmt_sig(high, 4)} Myr" for cid, stage, m, low, high in first + second]
     member_iv = []
     for iv in (first, second):
         o = stars.coeval_overlap([x[3] for x in iv], [x[4] for x in iv])
@@ -93,14 +94,14 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         strength = 0.0 - math.log10(max(chance, 1e-12))  # 0.0 - … keeps +0.0 when the chance is 1
         quantities.append(Quantity("common_age", "Common age range", (float(both.common_low) + float(both.common_high)) / 2,
                                    "Myr", low=float(both.common_low), high=float(both.common_high)))
-        text = (f"The members can share an age: {float(both.common_low):.4g}–{float(both.common_high):.4g} Myr; "
-                f"an unrelated star would overlap by chance with probability about {chance:.2g}.")
+        text = (f"The members can share an age: {fmt_sig(float(both.common_low), 4)}–{fmt_sig(float(both.common_high), 4)} Myr; "
+                f"an unrelated star would overlap by chance with probability about {fmt_sig(chance, 2)}.")
     else:
         z = 2 + float(both.gap_dex) / settings.age_systematic_dex
         strength = -z * z / (2 * math.log(10))
         quantities.append(Quantity("gap", "Gap between the age ranges", float(both.gap_dex), "dex"))
         text = (f"The members cannot share an age even with their masses at ±2σ: the ranges are "
-                f"{float(both.gap_dex):.2f} dex apart.")
+                f"{fmt_fixed(float(both.gap_dex), 2)} dex apart.")
     outcome = "supports" if strength > settings.decisive else "against" if strength < -settings.decisive else "neutral"
     return RULE.assessment(subject, outcome, text, strength=strength, quantities=tuple(quantities), reasons=tuple(lines))
 

@@ -37,6 +37,7 @@ import math
 from pydantic import Field
 
 from dossier.astro import binary
+from dossier.fmt import fmt_fixed
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -97,8 +98,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     dmu = math.hypot(d_ra, d_dec)
     outcome = "supports" if strength > settings.decisive else "against" if strength < -settings.decisive else "neutral"
     what = "tangential and radial" if used_rv else "tangential"
-    text = (f"The {what} velocity difference is {dv:.2f} km/s (Δμ = {dmu:.2f} mas/yr at {dist[1]:.0f} pc); a physical "
-            f"pair allows about {sigma_int:.2f} km/s per axis, a field star {settings.field_dispersion_kms:.0f} km/s. "
+    text = (f"The {what} velocity difference is {fmt_fixed(dv, 2)} km/s (Δμ = {fmt_fixed(dmu, 2)} mas/yr at {fmt_fixed(dist[1], 0)} pc); a physical "
+            f"pair allows about {fmt_fixed(sigma_int, 2)} km/s per axis, a field star {fmt_fixed(settings.field_dispersion_kms, 0)} km/s. "
             f"A diagnostic: the verdict weighs the motions jointly in the pair model.{note}")
     quantities = (
         Quantity("delta_pm", "Proper-motion difference Δμ", dmu, "mas/yr"),

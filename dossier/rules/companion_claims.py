@@ -72,6 +72,7 @@ from pydantic import Field
 
 from dossier.astro import binary, hierarchy
 from dossier.astro.seeding import seed_from
+from dossier.fmt import fmt_fixed, fmt_sig, plural
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts, julian_years
 
@@ -148,7 +149,7 @@ def _host_star(facts: SystemFacts, host: str | None, rng: np.random.Generator, n
         return None
     if phys.teff is not None and phys.radius is not None:
         return (_draw(rng, phys.teff.value, phys.teff.uncertainty, n, True),
-                _draw(rng, phys.radius.value, phys.radius.uncertainty, n, True), "the host's T_eff and R")
+                _draw(rng, phys.radius.value, phys.radius.uncertainty, n, True), "the host's T(eff) and R")
     if phys.mass is not None and phys.stage in (None, "main-sequence"):
         t, r = hierarchy.zams_teff_radius(_draw(rng, phys.mass.value, phys.mass.uncertainty, n, True))
         return t, r, "the host on the main sequence from its mass"
@@ -181,7 +182,7 @@ def detectability(facts: SystemFacts, subject: str, host: str | None, d: Detecti
         rho1 = a * hierarchy.sky_ratio(orbits.mean_anomaly + 2.0 * np.pi * dt / period, orbits.e, orbits.cos_i,
                                        orbits.omega)
         lo_q, hi_q = np.percentile(rho1, [16, 84])
-        how_in = f"expected at {lo_q:.2g}–{hi_q:.2g}″ (16–84 %) after {dt:.1f} yr of orbital motion"
+        how_in = f"expected at {fmt_sig(lo_q, 2)}–{fmt_sig(hi_q, 2)}″ (16–84 %) after {fmt_fixed(dt, 1)} yr of orbital motion"
     else:
         rho1 = rho0
         how_in = "no mass or parallax of the host: the companion is taken not to move"
@@ -205,11 +206,11 @@ def detectability(facts: SystemFacts, subject: str, host: str | None, d: Detecti
                       - hierarchy.band_delta_mag(th, rh, tc, rc, waves[d.band]))
             dm = dm + colour + rng.normal(0.0, settings.colour_model_sigma, n)
             q16, q50, q84 = np.percentile(dm, [16, 50, 84])
-            how_dm = (f"Δm({nd.band}) ≈ {q50:.1f} ({q16:.1f}–{q84:.1f}) from Δm({d.band}) by blackbody contrasts at "
-                      f"{waves[d.band]:g} and {waves[nd.band]:g} µm, {source}, the companion on the main sequence")
+            how_dm = (f"Δm({nd.band}) ≈ {fmt_fixed(q50, 1)} ({fmt_fixed(q16, 1)}–{fmt_fixed(q84, 1)}) from Δm({d.band}) by blackbody contrasts at "
+                      f"{fmt_sig(waves[d.band], 6)} and {fmt_sig(waves[nd.band], 6)} µm, {source}, the companion on the main sequence")
         else:
             dm = dm + rng.normal(0.0, settings.unknown_band_sigma, n)
-            how_dm = (f"Δm({d.band}) carried over to {nd.band} with {settings.unknown_band_sigma:g} mag more uncertainty: "
+            how_dm = (f"Δm({d.band}) carried over to {nd.band} with {fmt_sig(settings.unknown_band_sigma, 6)} mag more uncertainty: "
                       + ("no effective wavelength for these bands" if not (d.band in waves and nd.band in waves)
                          else "no temperature for the host"))
     p_dm = float(np.mean(dm <= nd.contrast))
@@ -232,8 +233,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     # independent confirmations: detections reported by different sources
     independent = len(sources)
     for d in sorted(found, key=lambda d: d.year):
-        what = f"ρ = {d.rho:.3g}″" if d.rho is not None else "an orbit"
-        dm = f", Δm = {d.delta_mag:.1f}" + (f" ({d.band})" if d.band else "") if d.delta_mag is not None else ""
+        what = f"ρ = {fmt_sig(d.rho, 3)}″" if d.rho is not None else "an orbit"
+        dm = f", Δm = {fmt_fixed(d.delta_mag, 1)}" + (f" ({d.band})" if d.band else "") if d.delta_mag is not None else ""
         reasons.append(f"Detected by {d.method} in {d.epoch} ({d.ref}): {what}{dm}.")
     # searches that should have seen it
     missed = []
@@ -244,17 +245,17 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             if d.rho is None or d.delta_mag is None:
                 continue
             p, p_in, p_dm, how_in, how_dm = detectability(facts, subject, host, d, nd, settings)
-            searched = (f"{nd.method} in {nd.epoch} ({nd.ref}), which reached Δm = {nd.contrast:.1f}"
-                        + (f" ({nd.band})" if nd.band else "") + f" between {nd.rho_range[0]:g}″ and {nd.rho_range[1]:g}″")
-            odds = (f"P(detectable) = {p:.2f}: P(inside the range) = {p_in:.2f} ({how_in}) × "
-                    f"P(bright enough) = {p_dm:.2f} ({how_dm})")
+            searched = (f"{nd.method} in {nd.epoch} ({nd.ref}), which reached Δm = {fmt_fixed(nd.contrast, 1)}"
+                        + (f" ({nd.band})" if nd.band else "") + f" between {fmt_sig(nd.rho_range[0], 6)}″ and {fmt_sig(nd.rho_range[1], 6)}″")
+            odds = (f"P(detectable) = {fmt_fixed(p, 2)}: P(inside the range) = {fmt_fixed(p_in, 2)} ({how_in}) × "
+                    f"P(bright enough) = {fmt_fixed(p_dm, 2)} ({how_dm})")
             if p >= settings.detect_probability:
                 missed.append(nd)
-                reasons.append(f"Not seen by {searched}: the claimed companion (Δm = {d.delta_mag:.1f} at {d.rho:.3g}″ "
+                reasons.append(f"Not seen by {searched}: the claimed companion (Δm = {fmt_fixed(d.delta_mag, 1)} at {fmt_sig(d.rho, 3)}″ "
                                f"in {d.epoch}) should have been seen, {odds}.")
                 break
             reasons.append(f"Searched by {searched}: not counted as missed, {odds}, below "
-                           f"{settings.detect_probability:g}.")
+                           f"{fmt_sig(settings.detect_probability, 6)}.")
     # motion between imaging epochs against a bound orbit
     impossible = False
     host_mass = facts.member_mass(host) if host is not None else None
@@ -272,8 +273,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             escape = 2 * math.pi * math.sqrt(2 * settings.mass_factor * host_mass[0] / s_au) * plx.mean / 1000.0
             if rate > escape:
                 impossible = True
-                reasons.append(f"The move from {d1.epoch} to {d2.epoch} ({1000 * rate:.0f} mas/yr) exceeds the escape "
-                               f"speed for {settings.mass_factor * host_mass[0]:.1f} M☉ ({1000 * escape:.0f} mas/yr): "
+                reasons.append(f"The move from {d1.epoch} to {d2.epoch} ({fmt_fixed(1000 * rate, 0)} mas/yr) exceeds the escape "
+                               f"speed for {fmt_fixed(settings.mass_factor * host_mass[0], 1)} M☉ ({fmt_fixed(1000 * escape, 0)} mas/yr): "
                                "not one bound companion.")
             else:
                 reasons.append(f"The move from {d1.epoch} to {d2.epoch} is possible for a bound orbit.")
@@ -291,8 +292,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     else:
         grade = "candidate"
     outcome = {"confirmed": "supports", "probable": "supports", "candidate": "neutral"}.get(grade, "against")
-    text = (f"{subject} is {grade}: {len(found)} detection(s) from {len(sources)} source(s)"
-            + (f", {len(missed)} search(es) that should have seen it" if missed else ", no search that should have seen it")
+    text = (f"{subject} is {grade}: {plural(len(found), 'detection')} from {plural(len(sources), 'source')}"
+            + (f", {plural(len(missed), 'search', 'searches')} that should have seen it" if missed else ", no search that should have seen it")
             + ".")
     return RULE.assessment(
         subject, outcome, text, grade=grade, reasons=tuple(reasons), sources=tuple(sources),

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 from pydantic import Field
 
+from dossier.fmt import fmt_fixed, fmt_sig, plural
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -49,8 +50,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         return RULE.insufficient(subject, f"{subject} has no parallax from any source.")
     q = [
         Quantity("parallax", "Combined parallax", plx.mean, "mas", plx.error_inflated,
-                 how=f"inverse-variance mean of {len(plx.sources)} source(s)"
-                 + (f"; uncertainty ×{plx.birge_ratio:.2f} (Birge ratio)" if plx.birge_ratio > 1 else "")),
+                 how=f"inverse-variance mean of {plural(len(plx.sources), 'source')}"
+                 + (f"; uncertainty ×{fmt_fixed(plx.birge_ratio, 2)} (Birge ratio)" if plx.birge_ratio > 1 else "")),
         Quantity("distance_mode", "Distance (posterior mode)", plx.distance_mode_pc, "pc",
                  how=f"exponentially decreasing space density prior, L = {settings.length_scale_kpc} kpc"),
         Quantity("distance", "Distance (median, 16–84 %)", plx.distance_q50_pc, "pc",
@@ -60,15 +61,15 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         q.append(Quantity("inverse_parallax", "Distance 1/ϖ", 1000.0 / plx.mean, "pc",
                           1000.0 * plx.error_inflated / plx.mean**2, how="σ/ϖ < 0.1, first-order propagation"))
     stat = None
-    text = f"{subject}: ϖ = {plx.mean:.3f} ± {plx.error_inflated:.3f} mas from {len(plx.sources)} source(s), "
-    text += f"distance {plx.distance_q50_pc:.1f} pc (16–84 %: {plx.distance_q16_pc:.1f}–{plx.distance_q84_pc:.1f})."
+    text = f"{subject}: ϖ = {fmt_fixed(plx.mean, 3)} ± {fmt_fixed(plx.error_inflated, 3)} mas from {plural(len(plx.sources), 'source')}, "
+    text += f"distance {fmt_fixed(plx.distance_q50_pc, 1)} pc (16–84 %: {fmt_fixed(plx.distance_q16_pc, 1)}–{fmt_fixed(plx.distance_q84_pc, 1)})."
     if plx.dof >= 1:
         stat = Quantity("chi2", "χ² of the sources about the mean", plx.chi2, "",
-                        how=f"{plx.dof} degree(s) of freedom, p = {plx.p_value:.2g}")
+                        how=f"{plural(plx.dof, 'degree')} of freedom, p = {fmt_sig(plx.p_value, 2)}")
         q.append(Quantity("birge_ratio", "Birge ratio", plx.birge_ratio, ""))
         if plx.p_value < settings.discord_p:
-            text += (f" The sources disagree (χ² = {plx.chi2:.1f} for {plx.dof} dof, p = {plx.p_value:.1g});"
-                     f" {plx.discordant} deviates most; the uncertainty is inflated by {plx.birge_ratio:.2f}.")
+            text += (f" The sources disagree (χ² = {fmt_fixed(plx.chi2, 1)} for {plx.dof} dof, p = {fmt_sig(plx.p_value, 1)});"
+                     f" {plx.discordant} deviates most; the uncertainty is inflated by {fmt_fixed(plx.birge_ratio, 2)}.")
     if plx.precision == "usable":
         text += " σ/ϖ is between 0.1 and 0.2: 1/ϖ would be biased, the posterior is used."
     elif plx.precision == "imprecise":

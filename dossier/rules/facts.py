@@ -29,6 +29,7 @@ import numpy as np
 from dossier.astro import angles, distance
 from dossier.astro.seeding import seed_from
 from dossier.cache import Cache
+from dossier.fmt import fmt_fixed, fmt_sig, fmt_signed
 from dossier.schema.models import Astrometry, Measured, System
 from dossier.schema.settings import Settings
 
@@ -367,7 +368,7 @@ class SystemFacts:
             else:
                 period = None
             if period is not None and period < hierarchy.ASTROMETRIC_SPAN_YR:
-                return replace(motion, how=f"the photocentre of {names}: their {period:.3g} yr orbit averages out of a "
+                return replace(motion, how=f"the photocentre of {names}: their {fmt_sig(period, 3)} yr orbit averages out of a "
                                            "multi-year astrometric solution; not corrected")
             if orbit is not None:
                 el = tuple((float(x.value), float(x.uncertainty)) for x in (
@@ -381,7 +382,7 @@ class SystemFacts:
                 return replace(motion, pmra=motion.pmra - ve, pmdec=motion.pmdec - vn, pmra_error=ex, pmdec_error=ey,
                                correlation=motion.correlation * motion.pmra_error * motion.pmdec_error / (ex * ey),
                                how=f"referred to the barycentre of {names}: the photocentre's orbital velocity "
-                                   f"({ve:+.2f}, {vn:+.2f}) ± ({se:.2f}, {sn:.2f}) mas/yr at J{t:.2f} from the published "
+                                   f"({fmt_signed(ve, 2)}, {fmt_signed(vn, 2)}) ± ({fmt_fixed(se, 2)}, {fmt_fixed(sn, 2)}) mas/yr at J{fmt_fixed(t, 2)} from the published "
                                    f"orbit of {inner.id} ({orbit.ref}, masses and {light}) was subtracted")
             if period is None or plx is None or plx.mean <= 0:
                 return replace(motion, how=f"the photocentre of the unresolved pair {inner.id}: not referred to its "
@@ -392,7 +393,7 @@ class SystemFacts:
             return replace(motion, pmra_error=ex, pmdec_error=ey,
                            correlation=motion.correlation * motion.pmra_error * motion.pmdec_error / (ex * ey),
                            how=f"the photocentre of {names} moves about their barycentre: its rms orbital velocity "
-                               f"{v:.2f} mas/yr per axis (P ≈ {period:.3g} yr, masses and {light}) was added in "
+                               f"{fmt_fixed(v, 2)} mas/yr per axis (P ≈ {fmt_sig(period, 3)} yr, masses and {light}) was added in "
                                "quadrature to the errors")
 
         out = {}
@@ -470,7 +471,7 @@ class SystemFacts:
                     )
                 r, t = angles.separation_pa(a.position.ra, a.position.dec, ra2, dec2)
                 rho, theta = float(r), float(t)
-                how = f"from the positions of {first} and {second} at epoch J{a.position.jyear:.2f}"
+                how = f"from the positions of {first} and {second} at epoch J{fmt_fixed(a.position.jyear, 2)}"
                 refs = (a.position.ref, b.position.ref)
             elif pair.id in self.logs and (~self.logs[pair.id].flagged).any():
                 log = self.logs[pair.id]

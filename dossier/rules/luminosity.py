@@ -25,6 +25,7 @@ import math
 
 from pydantic import Field
 
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -57,7 +58,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         return RULE.insufficient(subject, f"{subject} has no effective temperature.")
     t, st = phys.teff.value, phys.teff.uncertainty
     quantities, logs = [], []
-    text = f"{subject} (T_eff = {t:.0f} ± {st:.0f} K):"
+    text = f"{subject} (T(eff) = {fmt_fixed(t, 0)} ± {fmt_fixed(st, 0)} K):"
     if phys.radius is not None:
         r, sr = phys.radius.value, phys.radius.uncertainty
         lum = float(stars.luminosity_from_radius_teff(r, t))
@@ -65,7 +66,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         quantities.append(Quantity("L_radius", "L from radius and temperature", lum, "L☉", lum * s_log * math.log(10),
                                    how="R² (T/5772 K)⁴, IAU 2015 B3"))
         logs.append((math.log10(lum), s_log))
-        text += f" L = {lum:.3g} L☉ from its radius"
+        text += f" L = {fmt_sig(lum, 3)} L☉ from its radius"
     mag = facts.stars[subject].magnitudes.get(settings.band)
     plx = parallax_for(facts, subject)
     if mag is not None and plx is not None and plx.mean > 0:
@@ -79,19 +80,19 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         lum = float(stars.luminosity_from_magnitude(mag.value, d, float(bc), av))
         s_d = 5 * (plx.error_inflated / plx.mean) / math.log(10)
         s_log = 0.4 * math.sqrt(mag.uncertainty**2 + s_d**2 + s_av**2 + s_bc**2)
-        quantities.append(Quantity("bc_v", "Bolometric correction BC_V", float(bc), "mag", s_bc,
+        quantities.append(Quantity("bc_v", "Bolometric correction BC(V)", float(bc), "mag", s_bc,
                                    how="Flower 1996 / Torres 2010" + (" (clamped: outside its range)" if clamped else "")))
         quantities.append(Quantity("L_magnitude", "L from magnitude and distance", lum, "L☉", lum * s_log * math.log(10),
-                                   how=f"V = {mag.value:.2f}, d = {d:.1f} pc, A_V = {av:g}"
+                                   how=f"V = {fmt_fixed(mag.value, 2)}, d = {fmt_fixed(d, 1)} pc, A(V) = {fmt_sig(av, 6)}"
                                    + ("" if phys.extinction_v is not None else " (not given)")))
         logs.append((math.log10(lum), s_log))
-        text += ("," if len(logs) > 1 else "") + f" L = {lum:.3g} L☉ from its magnitude and distance"
+        text += ("," if len(logs) > 1 else "") + f" L = {fmt_sig(lum, 3)} L☉ from its magnitude and distance"
     if not logs:
         return RULE.insufficient(subject, f"{subject} has neither a radius nor a {settings.band} magnitude with a distance.")
     if len(logs) == 2:
         z = abs(logs[0][0] - logs[1][0]) / math.hypot(logs[0][1], logs[1][1])
         quantities.append(Quantity("agreement", "Difference of the two in log L", z, "σ"))
-        text += f": {'they agree' if z < 3 else 'they disagree'} ({z:.1f}σ)."
+        text += f": {'they agree' if z < 3 else 'they disagree'} ({fmt_fixed(z, 1)}σ)."
     else:
         text += "."
     return RULE.assessment(subject, "neutral", text, quantities=tuple(quantities),
@@ -104,7 +105,7 @@ RULE = Rule(
     version=1,
     subject="component",
     question="context",
-    needs=("T_eff", "a radius, or a V magnitude and a distance"),
+    needs=("T(eff)", "a radius, or a V magnitude and a distance"),
     citation="IAU 2015 Resolutions B2 and B3 (nominal solar values); Flower, P. J. 1996, ApJ 469, 355 with "
     "Torres, G. 2010, AJ 140, 1158 (bolometric corrections)",
     settings=Settings,

@@ -33,6 +33,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.cache import Cache
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -101,8 +102,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             verdict = "shares the motion" if shares else "moves differently"
             sharing += int(shares)
             shares_motion.append(1.0 if shares else 0.0)
-            details.append(f"{n.id}: {sep[i]:.1f} pc away, |Δv| = {diff.median[i]:.1f} (16–84 %: {diff.p16[i]:.1f}–"
-                           f"{diff.p84[i]:.1f}) km/s: {verdict}.")
+            details.append(f"{n.id}: {fmt_fixed(sep[i], 1)} pc away, |Δv| = {fmt_fixed(diff.median[i], 1)} (16–84 %: {fmt_fixed(diff.p16[i], 1)}–"
+                           f"{fmt_fixed(diff.p84[i], 1)}) km/s: {verdict}.")
         else:
             # tangential velocities at each star's own distance
             vt0 = k * np.array([pmra[0], pmdec[0]]) / plx[0]
@@ -110,7 +111,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             dvt = float(np.hypot(*(vt - vt0)))
             excluded = dvt > 3 * settings.group_dispersion_kms
             shares_motion.append(0.0 if excluded else math.nan)
-            details.append(f"{n.id}: {sep[i]:.1f} pc away, no radial velocity; tangential |Δv| = {dvt:.1f} km/s: "
+            details.append(f"{n.id}: {fmt_fixed(sep[i], 1)} pc away, no radial velocity; tangential |Δv| = {fmt_fixed(dvt, 1)} km/s: "
                            + ("moves differently." if excluded else "unknown."))
     per_star = []
     for i, (n, a) in enumerate(rows):
@@ -133,9 +134,9 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         Quantity("sharing", "Neighbours sharing the motion", float(sharing), "", how=f"of {len(rows)}"),
         *per_star,
     )
-    text = (f"{subject} moves at (U, V, W) = ({u:.1f}, {v:.1f}, {w:.1f}) ± ({su:.1f}, {sv:.1f}, {sw:.1f}) km/s "
+    text = (f"{subject} moves at (U, V, W) = ({fmt_fixed(u, 1)}, {fmt_fixed(v, 1)}, {fmt_fixed(w, 1)}) ± ({fmt_fixed(su, 1)}, {fmt_fixed(sv, 1)}, {fmt_fixed(sw, 1)}) km/s "
             "(heliocentric, not corrected for the solar motion); "
-            f"{sharing} of {len(rows)} neighbours share it within {settings.group_dispersion_kms:g} km/s.")
+            f"{sharing} of {len(rows)} neighbours share it within {fmt_sig(settings.group_dispersion_kms, 6)} km/s.")
     if not has_rv[0]:
         text += f" {subject} has no radial velocity: W and the differences are only tangential."
     refs = sorted({a.ref for _, a in rows})

@@ -48,6 +48,7 @@ from pydantic import Field
 from scipy import stats
 
 from dossier.astro import orbit as orbits
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -106,16 +107,16 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         Quantity("chi2_line", "χ² of a straight line", chi2_line, "", how=f"{log.linear.dof} degrees of freedom"),
         Quantity("p_fit", "χ² p-value of the orbit", p_fit, "", how=f"{dof} degrees of freedom (2N − 7)"),
         Quantity("delta_bic", "ΔBIC (orbit − straight line)", delta_bic, "",
-                 how="7 against 4 free parameters" + ("" if fits else f", errors × {math.sqrt(scale):.2g}")),
+                 how="7 against 4 free parameters" + ("" if fits else f", errors × {fmt_sig(math.sqrt(scale), 2)}")),
     ]
-    text = (f"The published orbit (P = {orbit.period_years:.1f} yr, a = {orbit.semimajor_axis.value:.3f}″, "
-            f"{orbit.ref}) leaves O−C of {quantities[0].value:.2f}° in θ and {quantities[1].value:.3f}″ in ρ (RMS) over "
-            f"{int(keep.sum())} measures; χ² = {chi2_orbit:.0f} for {dof} dof (p = {p_fit:.2g}) against {chi2_line:.0f} for a "
-            f"straight line (ΔBIC = {delta_bic:.1f}).")
+    text = (f"The published orbit (P = {fmt_fixed(orbit.period_years, 1)} yr, a = {fmt_fixed(orbit.semimajor_axis.value, 3)}″, "
+            f"{orbit.ref}) leaves O−C of {fmt_fixed(quantities[0].value, 2)}° in θ and {fmt_fixed(quantities[1].value, 3)}″ in ρ (RMS) over "
+            f"{int(keep.sum())} measures; χ² = {fmt_fixed(chi2_orbit, 0)} for {dof} dof (p = {fmt_sig(p_fit, 2)}) against {fmt_fixed(chi2_line, 0)} for a "
+            f"straight line (ΔBIC = {fmt_fixed(delta_bic, 1)}).")
     if not fits:
-        text += (f" The orbit leaves more scatter than the measures' stated errors allow (χ²/dof = {scale:.2g}): "
+        text += (f" The orbit leaves more scatter than the measures' stated errors allow (χ²/dof = {fmt_sig(scale, 2)}): "
                  "the errors are underestimated or the orbit needs revising. Against the straight line both are "
-                 f"compared with every error widened by the Birge ratio {math.sqrt(scale):.2g}.")
+                 f"compared with every error widened by the Birge ratio {fmt_sig(math.sqrt(scale), 2)}.")
     refit = settings.refit_published or bool(facts.settings.rules.get("orbit-fit", {}).get("refit_published", False))
     if refit:
         text += _refit_comparison(facts, subject, orbit, chi2_orbit, quantities)
@@ -127,15 +128,15 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         s_dyn = float(orbits.dynamical_mass_uncertainty(orbit.semimajor_axis.value, orbit.semimajor_axis.uncertainty,
                                                         plx[0], plx[1], orbit.period_years, orbit.period_years_error))
         quantities.append(Quantity("dynamical_mass", "Dynamical total mass a³/(ϖ³P²)", m_dyn, "M☉", s_dyn,
-                                   how=f"ϖ = {plx[0]:.3f} ± {plx[1]:.3f} mas"))
-        text += f" The dynamical mass is {m_dyn:.2f} ± {s_dyn:.2f} M☉"
+                                   how=f"ϖ = {fmt_fixed(plx[0], 3)} ± {fmt_fixed(plx[1], 3)} mas"))
+        text += f" The dynamical mass is {fmt_fixed(m_dyn, 2)} ± {fmt_fixed(s_dyn, 2)} M☉"
         if mass is not None:
             z = abs(m_dyn - mass[0]) / math.hypot(s_dyn, mass[1])
             quantities.append(Quantity("mass_sum", "Sum of the component masses", mass[0], "M☉", mass[1]))
             quantities.append(Quantity("mass_tension", "Dynamical − summed mass", z, "σ"))
             sources += list(mass[2])
             text += (f", {'consistent with' if z < settings.mass_tension_sigma else 'in tension with'} the sum of "
-                     f"the component masses {mass[0]:.2f} ± {mass[1]:.2f} M☉ ({z:.1f}σ).")
+                     f"the component masses {fmt_fixed(mass[0], 2)} ± {fmt_fixed(mass[1], 2)} M☉ ({fmt_fixed(z, 1)}σ).")
             if z >= settings.mass_tension_sigma:
                 text += " The parallax, the masses or the orbit must be wrong."
         else:
@@ -185,7 +186,7 @@ def _refit_comparison(facts: SystemFacts, subject: str, orbit, chi2_published: f
         diff = float(wrap(mid - v)) if k in ("node", "omega") else mid - v
         z = diff / math.hypot(0.5 * (hi - lo), s)
         quantities.append(Quantity(f"refit_delta_{k}", f"Refit − published {k}", z, "σ",
-                                   how=f"refit {mid:.4g} ({post.method}), published {v:.4g} ± {s:.2g}"))
+                                   how=f"refit {fmt_sig(mid, 4)} ({post.method}), published {fmt_sig(v, 4)} ± {fmt_sig(s, 2)}"))
         if abs(z) > abs(worst[0]):
             worst = (z, k)
     chi2_refit = float(np.nanmin(post.chi2))
@@ -193,5 +194,5 @@ def _refit_comparison(facts: SystemFacts, subject: str, orbit, chi2_published: f
     quantities.append(Quantity("refit_delta_chi2", "χ²(published) − χ²(refit)", d_chi2, "",
                                how="equal to ΔBIC: both orbits have 7 elements"))
     return (f" Refitted from the log ({post.method}): the elements differ from the published ones by at most "
-            f"{abs(worst[0]):.1f}σ (in {worst[1]}); Δχ² = ΔBIC = {d_chi2:.1f} in favour of the "
+            f"{fmt_fixed(abs(worst[0]), 1)}σ (in {worst[1]}); Δχ² = ΔBIC = {fmt_fixed(d_chi2, 1)} in favour of the "
             f"{'refit' if d_chi2 > 0 else 'published orbit'}.")

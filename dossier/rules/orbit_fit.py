@@ -54,6 +54,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import orbit_posterior as op
+from dossier.fmt import fmt_fixed, fmt_sig, plural
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -93,12 +94,12 @@ def interval_quantities(post: op.OrbitPosterior, plx) -> list[Quantity]:
     for k, label, unit in names:
         lo, mid, hi = (float(v) for v in post.quantiles(k))
         out.append(Quantity(f"orbit_{k}", label, mid, unit, 0.5 * (hi - lo), low=lo, high=hi,
-                            how=f"median, 68 % interval {lo:.4g} – {hi:.4g} ({post.method})"))
+                            how=f"median, 68 % interval {fmt_sig(lo, 4)} – {fmt_sig(hi, 4)} ({post.method})"))
     if plx is not None and np.isfinite(post.mass).any():
         lo, mid, hi = (float(v) for v in post.quantiles("mass"))
         out.append(Quantity("dynamical_mass", "Dynamical total mass", mid, "M☉", 0.5 * (hi - lo), low=lo, high=hi,
-                            how=f"a³/(ϖ³P²), median, 68 % interval {lo:.3g} – {hi:.3g}; ϖ = {plx[0]:.3f} ± "
-                                f"{plx[1]:.3f} mas"))
+                            how=f"a³/(ϖ³P²), median, 68 % interval {fmt_sig(lo, 3)} – {fmt_sig(hi, 3)}; ϖ = {fmt_fixed(plx[0], 3)} ± "
+                                f"{fmt_fixed(plx[1], 3)} mas"))
     return out
 
 
@@ -109,11 +110,11 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     if log is None:
         return RULE.insufficient(subject, "No measures of this pair in the observing log.")
     if len(log.mt) < settings.min_nights:
-        return RULE.insufficient(subject, f"{len(log.mt)} night(s) of measures; an orbit fit needs {settings.min_nights}.")
+        return RULE.insufficient(subject, f"{plural(len(log.mt), 'night')} of measures; an orbit fit needs {settings.min_nights}.")
     p_curv = facts.settings.log.curvature_p
     if not log.is_curved(p_curv):
-        p = "untested" if log.curvature is None else f"p = {log.curvature.p_value:.2g}"
-        return RULE.insufficient(subject, f"The path shows no significant curvature ({p}, threshold {p_curv:g}): "
+        p = "untested" if log.curvature is None else f"p = {fmt_sig(log.curvature.p_value, 2)}"
+        return RULE.insufficient(subject, f"The path shows no significant curvature ({p}, threshold {fmt_sig(p_curv, 6)}): "
                                  "the arc is too short to show an orbit.")
     published = facts.visual_orbit(subject)
     post = facts.visual_posteriors.get(subject)
@@ -126,9 +127,9 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     span = log.span_years
     adequate = op.adequacy(post, span, min_coverage=settings.min_coverage, max_width=settings.max_period_width)
     if adequate.status == "too-short":
-        return RULE.insufficient(subject, f"The measures span {span:.0f} yr: arc too short to constrain an orbit "
-                                 f"(posterior probability {adequate.prob_coverage:.2f} that they cover "
-                                 f"{100 * settings.min_coverage:.0f} % of the period).")
+        return RULE.insufficient(subject, f"The measures span {fmt_fixed(span, 0)} yr: arc too short to constrain an orbit "
+                                 f"(posterior probability {fmt_fixed(adequate.prob_coverage, 2)} that they cover "
+                                 f"{fmt_fixed(100 * settings.min_coverage, 0)} % of the period).")
     n_data = 2 * len(log.mt)
     dof = n_data - ORBIT_PARAMETERS
     chi2_min = float(np.nanmin(post.chi2))
@@ -139,26 +140,26 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     cq = adequate.coverage_q
     quantities += [
         Quantity("coverage", "Fraction of the period covered", cq[1], "", 0.5 * (cq[2] - cq[0]),
-                 how=f"span / P over the posterior, 68 % interval {cq[0]:.2f} – {cq[2]:.2f}"),
-        Quantity("p_coverage", f"Posterior probability of covering {100 * settings.min_coverage:.0f} % of the period",
+                 how=f"span / P over the posterior, 68 % interval {fmt_fixed(cq[0], 2)} – {fmt_fixed(cq[2], 2)}"),
+        Quantity("p_coverage", f"Posterior probability of covering {fmt_fixed(100 * settings.min_coverage, 0)} % of the period",
                  adequate.prob_coverage, ""),
         Quantity("period_width", "Fractional width of the period interval", adequate.width, ""),
-        Quantity("chi2_orbit", "Lowest χ² of the orbit draws", chi2_min, "", how=f"{dof} dof, p = {p_fit:.2g}"),
+        Quantity("chi2_orbit", "Lowest χ² of the orbit draws", chi2_min, "", how=f"{dof} dof, p = {fmt_sig(p_fit, 2)}"),
         Quantity("p_fit", "χ² p-value of the best orbit", p_fit, ""),
     ]
     P = quantities[0]
-    text = (f"Orbits drawn for {len(log.mt)} nights over {span:.0f} yr ({post.method}, {len(post)} draws): "
-            f"P = {P.value:.3g} yr (68 %: {post.quantiles('P')[0]:.3g} – {post.quantiles('P')[2]:.3g}), "
-            f"e = {quantities[2].value:.2f} ± {quantities[2].uncertainty:.2f}, a = {quantities[3].value:.3f} ± "
-            f"{quantities[3].uncertainty:.3f}″, covering {100 * cq[1]:.0f} % of the period: {adequate.text}.")
+    text = (f"Orbits drawn for {len(log.mt)} nights over {fmt_fixed(span, 0)} yr ({post.method}, {len(post)} draws): "
+            f"P = {fmt_sig(P.value, 3)} yr (68 %: {fmt_sig(post.quantiles('P')[0], 3)} – {fmt_sig(post.quantiles('P')[2], 3)}), "
+            f"e = {fmt_fixed(quantities[2].value, 2)} ± {fmt_fixed(quantities[2].uncertainty, 2)}, a = {fmt_fixed(quantities[3].value, 3)} ± "
+            f"{fmt_fixed(quantities[3].uncertainty, 3)}″, covering {fmt_fixed(100 * cq[1], 0)} % of the period: {adequate.text}.")
     mass_q = next((q for q in quantities if q.name == "dynamical_mass"), None)
     if mass_q is not None:
-        text += f" Dynamical mass {mass_q.value:.2f} ± {mass_q.uncertainty:.2f} M☉."
+        text += f" Dynamical mass {fmt_fixed(mass_q.value, 2)} ± {fmt_fixed(mass_q.uncertainty, 2)} M☉."
     if published is not None:
         text += f" Shown beside the published orbit ({published.ref}), which is the one weighed."
         return RULE.assessment(subject, "neutral", text, quantities=tuple(quantities), sources=("observing log",))
     if not fits:
-        text += (f" The best orbit leaves χ² = {chi2_min:.0f} for {dof} dof (p = {p_fit:.2g}): it does not describe "
+        text += (f" The best orbit leaves χ² = {fmt_fixed(chi2_min, 0)} for {dof} dof (p = {fmt_sig(p_fit, 2)}): it does not describe "
                  "the measures, so no orbit was found.")
         return RULE.assessment(subject, "neutral", text, quantities=tuple(quantities), sources=("observing log",))
     if not adequate.determined:

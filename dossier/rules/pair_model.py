@@ -42,6 +42,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import angles, pairmodel
+from dossier.fmt import fmt_fixed, fmt_signed
 from dossier.rules import chance_alignment
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
@@ -126,13 +127,13 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     pair = facts.pairs[subject]
     motion = ("proper motions and radial velocities" if bool(r["has_rv"][0]) else
               "proper motions" if bool(r["has_motion"][0]) else "no motions (none known for both stars)")
-    text = (f"Weighed jointly: separation prior {v['prior_log10']:+.2f}, parallaxes {v['parallax_log10']:+.2f}, "
-            f"{motion} {v['motion_log10']:+.2f} in log10 odds physical : chance; bound : co-moving "
-            f"{v['binding_prior_log10'] + v['binding_motion_log10']:+.2f}.")
+    text = (f"Weighed jointly: separation prior {fmt_signed(v['prior_log10'], 2)}, parallaxes {fmt_signed(v['parallax_log10'], 2)}, "
+            f"{motion} {fmt_signed(v['motion_log10'], 2)} in log10 odds physical : chance; bound : co-moving "
+            f"{fmt_signed(v['binding_prior_log10'] + v['binding_motion_log10'], 2)}.")
     if bool(r["has_motion"][0]):
-        text += (f" Velocity difference {v['delta_v_tangential_kms']:.2f} ± {v['sigma_v_tangential_kms']:.2f} km/s on "
-                 f"the sky (corrected for perspective) against a circular speed of {v['circular_speed_kms']:.2f} km/s "
-                 f"at {v['projected_separation_au']:.0f} au.")
+        text += (f" Velocity difference {fmt_fixed(v['delta_v_tangential_kms'], 2)} ± {fmt_fixed(v['sigma_v_tangential_kms'], 2)} km/s on "
+                 f"the sky (corrected for perspective) against a circular speed of {fmt_fixed(v['circular_speed_kms'], 2)} km/s "
+                 f"at {fmt_fixed(v['projected_separation_au'], 0)} au.")
     def q(name, label, unit="", how=""):
         return Quantity(name, label, v[name], unit, how=how)
 

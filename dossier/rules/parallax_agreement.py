@@ -42,6 +42,7 @@ from pydantic import Field
 from dossier.astro import distance
 from dossier.astro.binary import python_hypot as _hypot  # CPython's math.hypot, bit for bit
 from dossier.astro.binary import python_square as _pow2  # CPython's x ** 2, bit for bit
+from dossier.fmt import fmt_fixed
 from dossier.rules.base import OUTCOME_CODES, Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -177,11 +178,11 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     stat = Quantity("z", "|Δϖ| / σ", z, "σ")
     consistent = outcome == OUTCOME_CODES["supports"]
     if consistent:
-        text = (f"The parallaxes of {pair.first} ({a.mean:.3f} ± {a.error_inflated:.3f} mas) and {pair.second} "
-                f"({b.mean:.3f} ± {b.error_inflated:.3f} mas) agree within {z:.1f}σ (threshold {threshold:.0f}σ).")
+        text = (f"The parallaxes of {pair.first} ({fmt_fixed(a.mean, 3)} ± {fmt_fixed(a.error_inflated, 3)} mas) and {pair.second} "
+                f"({fmt_fixed(b.mean, 3)} ± {fmt_fixed(b.error_inflated, 3)} mas) agree within {fmt_fixed(z, 1)}σ (threshold {fmt_fixed(threshold, 0)}σ).")
     else:
-        text = (f"The parallaxes of {pair.first} ({a.mean:.3f} ± {a.error_inflated:.3f} mas) and {pair.second} "
-                f"({b.mean:.3f} ± {b.error_inflated:.3f} mas) differ by {z:.1f}σ, beyond the {threshold:.0f}σ "
+        text = (f"The parallaxes of {pair.first} ({fmt_fixed(a.mean, 3)} ± {fmt_fixed(a.error_inflated, 3)} mas) and {pair.second} "
+                f"({fmt_fixed(b.mean, 3)} ± {fmt_fixed(b.error_inflated, 3)} mas) differ by {fmt_fixed(z, 1)}σ, beyond the {fmt_fixed(threshold, 0)}σ "
                 "a physical pair allows.")
     return RULE.assessment(
         subject, "supports" if consistent else "against", text, strength=strength, statistic=stat,

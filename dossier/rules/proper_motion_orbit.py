@@ -44,6 +44,7 @@ from pydantic import Field
 
 from dossier.astro import binary, binding
 from dossier.astro.binary import python_square
+from dossier.fmt import fmt_fixed
 from dossier.rules.base import (
     OUTCOME_CODES,
     OUTCOME_NAMES,
@@ -183,14 +184,14 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
                                    "p_bound"))
     outcome = OUTCOME_NAMES[int(one["outcome"][0]) + 2]
     el_badry = bool(one["within_limit"][0])
-    text = (f"Δμ = {dmu:.3f} ± {sigma:.3f} mas/yr against {orbit:.3f} mas/yr for a circular orbit of {mass[0]:.2f} M☉ "
-            f"at {pair.rho_arcsec:.2f}″ and {escape:.3f} mas/yr for escape: "
+    text = (f"Δμ = {fmt_fixed(dmu, 3)} ± {fmt_fixed(sigma, 3)} mas/yr against {fmt_fixed(orbit, 3)} mas/yr for a circular orbit of {fmt_fixed(mass[0], 2)} M☉ "
+            f"at {fmt_fixed(pair.rho_arcsec, 2)}″ and {fmt_fixed(escape, 3)} mas/yr for escape: "
             + ("within the El-Badry et al. limit." if el_badry else "beyond the El-Badry et al. limit.")
             + " A diagnostic: the verdict weighs the motions in the pair model, which allows for unresolved companions.")
     quantities = (
         Quantity("delta_pm", "Proper-motion difference Δμ", dmu, "mas/yr", sigma, how="σ_Δμ of El-Badry et al. 2021"),
         Quantity("orbit_limit", "Largest circular-orbit Δμ", orbit, "mas/yr",
-                 how=f"M = {mass[0]:.2f} M☉, ϖ = {plx[0]:.3f} mas, θ = {pair.rho_arcsec:.3f}″"),
+                 how=f"M = {fmt_fixed(mass[0], 2)} M☉, ϖ = {fmt_fixed(plx[0], 3)} mas, θ = {fmt_fixed(pair.rho_arcsec, 3)}″"),
         Quantity("escape_limit", "Escape Δμ", escape, "mas/yr", how="√2 × the circular limit"),
         Quantity("p_bound", "P(bound) from this line alone, even prior", p_bound, ""),
     )

@@ -36,6 +36,7 @@ from pydantic import Field
 
 from dossier.astro import binary, binding
 from dossier.astro.binary import python_square
+from dossier.fmt import fmt_fixed, fmt_signed
 from dossier.rules.base import (
     OUTCOME_CODES,
     OUTCOME_NAMES,
@@ -142,8 +143,8 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         float(one[k][0]) for k in ("delta_rv", "delta_rv_uncertainty", "projected_separation", "circular_speed",
                                    "escape_speed", "strength", "p_bound"))
     outcome = OUTCOME_NAMES[int(one["outcome"][0]) + 2]
-    text = (f"ΔRV = {diff:+.2f} ± {sigma:.2f} km/s against a circular speed of {v_c:.2f} km/s and an escape speed of "
-            f"{v_esc:.2f} km/s for {mass[0]:.2f} M☉ at {s_au:.0f} au. A diagnostic: the verdict weighs the RVs in the pair model.")
+    text = (f"ΔRV = {fmt_signed(diff, 2)} ± {fmt_fixed(sigma, 2)} km/s against a circular speed of {fmt_fixed(v_c, 2)} km/s and an escape speed of "
+            f"{fmt_fixed(v_esc, 2)} km/s for {fmt_fixed(mass[0], 2)} M☉ at {fmt_fixed(s_au, 0)} au. A diagnostic: the verdict weighs the RVs in the pair model.")
     for star in (a, b):
         if star.rv_from_orbit:
             text += f" {star.id}'s velocity is the systemic γ of its {star.radial_velocity.ref}."

@@ -40,6 +40,7 @@ import math
 import numpy as np
 from pydantic import Field
 
+from dossier.fmt import fmt_fixed, fmt_sig, fmt_signed, plural
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -53,7 +54,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     if log is None:
         return RULE.insufficient(subject, "No measures of this pair in the observing log.")
     if log.linear is None:
-        return RULE.insufficient(subject, f"Only {len(log.mt)} night(s) of unflagged measures; a motion needs three.")
+        return RULE.insufficient(subject, f"Only {plural(len(log.mt), 'night')} of unflagged measures; a motion needs three.")
     lin = log.linear
     # rates in mas/yr: x north, y east
     rate_n, rate_e = 1000 * lin.coef_x[1], 1000 * lin.coef_y[1]
@@ -66,9 +67,9 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         Quantity("span", "Time covered", span, "yr", how=f"{len(log.mt)} nights, {len(log.t)} measures"),
         Quantity("chi2_linear", "χ² of the straight line", lin.chi2, "", how=f"{lin.dof} degrees of freedom"),
     ]
-    text = (f"{len(log.t)} measures on {len(log.mt)} nights over {span:.0f} yr"
+    text = (f"{len(log.t)} measures on {len(log.mt)} nights over {fmt_fixed(span, 0)} yr"
             + (f" ({n_flag} flagged as outliers, kept in the log)" if n_flag else "")
-            + f" move at ({rate_e:+.2f} ± {err_e:.2f}, {rate_n:+.2f} ± {err_n:.2f}) mas/yr in (east, north).")
+            + f" move at ({fmt_signed(rate_e, 2)} ± {fmt_fixed(err_e, 2)}, {fmt_signed(rate_n, 2)} ± {fmt_fixed(err_n, 2)}) mas/yr in (east, north).")
     pair = facts.pairs[subject]
     a, b = facts.stars.get(pair.first), facts.stars.get(pair.second)
     if a is not None and b is not None and a.motion and b.motion and pair.first != pair.second:
@@ -77,17 +78,17 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         s_n = math.hypot(math.hypot(a.motion.pmdec_error, b.motion.pmdec_error), err_n)
         z = math.hypot((rate_e - d_e) / s_e, (rate_n - d_n) / s_n)
         quantities.append(Quantity("pm_difference", "Relative proper motion (east, north)", math.hypot(d_e, d_n),
-                                   "mas/yr", how=f"({d_e:+.2f}, {d_n:+.2f}) from the astrometric solutions"))
+                                   "mas/yr", how=f"({fmt_signed(d_e, 2)}, {fmt_signed(d_n, 2)}) from the astrometric solutions"))
         quantities.append(Quantity("rate_vs_pm", "Fitted rate − relative proper motion", z, "σ"))
-        text += (f" The relative proper motion is ({d_e:+.2f}, {d_n:+.2f}) mas/yr: "
-                 + ("they agree" if z < 3 else "they differ") + f" ({z:.1f}σ).")
+        text += (f" The relative proper motion is ({fmt_signed(d_e, 2)}, {fmt_signed(d_n, 2)}) mas/yr: "
+                 + ("they agree" if z < 3 else "they differ") + f" ({fmt_fixed(z, 1)}σ).")
     strength = 0.0
     outcome = "neutral"
     stat = None
     if log.curvature is not None:
         c = log.curvature
         strength = max(0.0, -c.delta_bic / (2 * math.log(10)))
-        stat = Quantity("F", "F-test, quadratic against straight", c.F, "", how=f"p = {c.p_value:.2g}")
+        stat = Quantity("F", "F-test, quadratic against straight", c.F, "", how=f"p = {fmt_sig(c.p_value, 2)}")
         quantities.append(Quantity("p_curvature", "p-value of no curvature", c.p_value, ""))
         quantities.append(Quantity("delta_bic", "ΔBIC (quadratic − straight)", c.delta_bic, ""))
         # one threshold for "curved", shared with the orbit-fit rule: [log] curvature_p in dossier.toml
@@ -96,13 +97,13 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
             strength = 0.0
         if curved and strength > settings.decisive:
             outcome = "supports"
-            text += (f" The path is curved (F = {c.F:.1f}, p = {c.p_value:.2g}, ΔBIC = {c.delta_bic:.1f}): "
+            text += (f" The path is curved (F = {fmt_fixed(c.F, 1)}, p = {fmt_sig(c.p_value, 2)}, ΔBIC = {fmt_fixed(c.delta_bic, 1)}): "
                      "orbital acceleration, which only a physical pair shows.")
         elif curved:
-            text += (f" The path is curved (p = {c.p_value:.2g}), but the quadratic's gain is not decisive "
-                     f"(ΔBIC = {c.delta_bic:.1f}).")
+            text += (f" The path is curved (p = {fmt_sig(c.p_value, 2)}), but the quadratic's gain is not decisive "
+                     f"(ΔBIC = {fmt_fixed(c.delta_bic, 1)}).")
         else:
-            text += f" No significant curvature (p = {c.p_value:.2g})."
+            text += f" No significant curvature (p = {fmt_sig(c.p_value, 2)})."
     else:
         text += " Too few nights to test for curvature."
     refs = sorted({m.ref for m in log.measures if m.ref})

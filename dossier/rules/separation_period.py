@@ -27,6 +27,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.astro import binary
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -64,13 +65,13 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     a16, a50, a84 = np.percentile(a, [16, 50, 84])
     quantities = [
         Quantity("projected_separation", "Projected separation s", float(s50), "au",
-                 low=float(s16), high=float(s84), how=f"ρ = {pair.rho_arcsec:.3f}″ × distance"),
+                 low=float(s16), high=float(s84), how=f"ρ = {fmt_fixed(pair.rho_arcsec, 3)}″ × distance"),
         Quantity("semimajor_axis", "Semimajor axis a (statistical)", float(a50), "au", low=float(a16), high=float(a84),
                  how=f"Monte Carlo over orientation, phase and e ({settings.eccentricity})"),
         Quantity("a_over_s", "Median a/s", float(np.median(1 / ratio)), ""),
     ]
     mass = facts.pair_mass(subject)
-    text = f"The projected separation is {s50:.0f} au (16–84 %: {s16:.0f}–{s84:.0f}); the semimajor axis is likely {a16:.0f}–{a84:.0f} au"
+    text = f"The projected separation is {fmt_fixed(s50, 0)} au (16–84 %: {fmt_fixed(s16, 0)}–{fmt_fixed(s84, 0)}); the semimajor axis is likely {fmt_fixed(a16, 0)}–{fmt_fixed(a84, 0)} au"
     sources = list(pair.separation_refs)
     if mass is not None:
         m = rng.normal(mass[0], mass[1], s.size)
@@ -78,7 +79,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         period = binary.kepler_period_yr(a[good], m[good])
         p16, p50, p84 = np.percentile(period, [16, 50, 84])
         quantities.append(Quantity("period", "Orbital period (statistical)", float(p50), "yr", low=float(p16),
-                                   high=float(p84), how=f"Kepler's third law, M = {mass[0]:.2f} ± {mass[1]:.2f} M☉"))
+                                   high=float(p84), how=f"Kepler's third law, M = {fmt_fixed(mass[0], 2)} ± {fmt_fixed(mass[1], 2)} M☉"))
         text += f", and the period {_years(p16)}–{_years(p84)} (median {_years(p50)})."
         sources += list(mass[2])
     else:
@@ -88,10 +89,10 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
 
 def _years(p: float) -> str:
     if p >= 1e6:
-        return f"{p / 1e6:.2g} Myr"
+        return f"{fmt_sig(p / 1e6, 2)} Myr"
     if p >= 1e3:
-        return f"{p / 1e3:.2g} kyr"
-    return f"{p:.3g} yr"
+        return f"{fmt_sig(p / 1e3, 2)} kyr"
+    return f"{fmt_sig(p, 3)} yr"
 
 
 RULE = Rule(

@@ -24,6 +24,7 @@ import numpy as np
 from pydantic import Field
 
 from dossier.cache import Cache
+from dossier.fmt import fmt_fixed
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -54,7 +55,7 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     stored = (facts.cache or Cache(None)).get_or_compute(
         "uvw-one", {"inputs": args, "n": settings.samples, "seed": settings.seed}, compute)
     (u, v, w), (su, sv, sw) = stored["mean"], stored["std"]
-    text = (f"{subject} moves at (U, V, W) = ({u:.2f} ± {su:.2f}, {v:.2f} ± {sv:.2f}, {w:.2f} ± {sw:.2f}) km/s, "
+    text = (f"{subject} moves at (U, V, W) = ({fmt_fixed(u, 2)} ± {fmt_fixed(su, 2)}, {fmt_fixed(v, 2)} ± {fmt_fixed(sv, 2)}, {fmt_fixed(w, 2)} ± {fmt_fixed(sw, 2)}) km/s, "
             "heliocentric.")
     if s.rv_from_orbit:
         text += f" Its radial velocity is the systemic γ of its {s.radial_velocity.ref}."

@@ -72,6 +72,7 @@ import math
 
 from pydantic import Field
 
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -124,11 +125,11 @@ def _interval_quantity(name: str, label: str, iv, unit: str, how: str = "") -> Q
 
 
 def _fmt(iv, digits: int = 3) -> str:
-    return f"{iv.q50:.{digits}g} (−{iv.minus:.2g}/+{iv.plus:.2g})"
+    return f"{fmt_sig(iv.q50, digits)} (−{fmt_sig(iv.minus, 2)}/+{fmt_sig(iv.plus, 2)})"
 
 
 def _candidates_text(solution) -> str:
-    parts = [f"{c.period:.5g} d (FAP {c.fap:.2g})" for c in solution.candidates[:4]]
+    parts = [f"{fmt_sig(c.period, 5)} d (FAP {fmt_sig(c.fap, 2)})" for c in solution.candidates[:4]]
     return "; candidate periods: " + ", ".join(parts) if parts else ""
 
 
@@ -139,21 +140,21 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     var = orbit.variability
     n = len(orbit.v)
     quantities = [Quantity("log10_p", "log10 p of a constant velocity", float(var.log10_p), "",
-                           how=f"χ² = {var.chi2:.1f} for {var.dof} dof, jitter {orbit.jitter:g} km/s")]
+                           how=f"χ² = {fmt_fixed(var.chi2, 1)} for {var.dof} dof, jitter {fmt_sig(orbit.jitter, 6)} km/s")]
     sources = tuple(sorted(set(orbit.refs) - {""}))
     solution = orbit.solution
     if solution is None:
         reason = {"constant": "constant within the errors", "possibly variable": "possibly variable",
                   "variable, too few velocities": "variable, but too few for a period search"}[orbit.status]
-        text = f"The {n} velocities of {orbit.star} are {reason} (log10 p = {var.log10_p:.1f})."
+        text = f"The {n} velocities of {orbit.star} are {reason} (log10 p = {fmt_fixed(var.log10_p, 1)})."
         return RULE.assessment(subject, "neutral", text, strength=0.0, quantities=tuple(quantities), sources=sources)
     quantities.append(Quantity("fap", "False-alarm probability of the highest peak", float(solution.fap), "",
                                how="Baluev 2008, MNRAS 385, 1279"))
     if not orbit.detected:
         for k, c in enumerate(solution.candidates[:5]):
             quantities.append(Quantity(f"candidate_{k + 1}", f"Candidate period {k + 1}", float(c.period), "d",
-                                       how=f"{c.kind}; FAP {c.fap:.2g}; ΔBIC {c.delta_bic:.1f}"))
-        text = (f"The {n} velocities of {orbit.star} vary (log10 p = {var.log10_p:.1f}), but the period is not "
+                                       how=f"{c.kind}; FAP {fmt_sig(c.fap, 2)}; ΔBIC {fmt_fixed(c.delta_bic, 1)}"))
+        text = (f"The {n} velocities of {orbit.star} vary (log10 p = {fmt_fixed(var.log10_p, 1)}), but the period is not "
                 f"determined: " + "; ".join(solution.reasons) + _candidates_text(solution) + ".")
         return RULE.assessment(subject, "neutral", text, strength=0.0, quantities=tuple(quantities), sources=sources)
 
@@ -168,20 +169,20 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         quantities.append(_interval_quantity(f"orbit_gamma{suffix}", f"Systemic velocity γ ({name or 'default'})",
                                              g, "km/s"))
     quantities.append(_interval_quantity("jitter", "Jitter", post.jitter, "km/s",
-                                         how=f"prior median {orbit.jitter:g} km/s for the star's stage"))
+                                         how=f"prior median {fmt_sig(orbit.jitter, 6)} km/s for the star's stage"))
     quantities.append(_interval_quantity("mass_function", "Mass function f(M)", post.mass_function, "M☉"))
     g = post.gamma[ref]
     text = (f"The {n} velocities of {orbit.star} vary with a period of {_fmt(post.P, 6)} d "
-            f"(false-alarm probability {solution.fap:.1g}; K = {_fmt(post.K)} km/s, e = {_fmt(post.e, 2)}, "
+            f"(false-alarm probability {fmt_sig(solution.fap, 1)}; K = {_fmt(post.K)} km/s, e = {_fmt(post.e, 2)}, "
             f"γ = {_fmt(g, 4)} km/s); f(M) = {_fmt(post.mass_function)} M☉")
     if post.m2_min is not None:
         primary = facts.stars[orbit.star].mass
         quantities.append(_interval_quantity("m2_min", "Minimum companion mass", post.m2_min, "M☉",
-                                             how=f"for a primary of {primary.value:.2f} ± {primary.uncertainty:.2f} M☉"))
+                                             how=f"for a primary of {fmt_fixed(primary.value, 2)} ± {fmt_fixed(primary.uncertainty, 2)} M☉"))
         text += f", so the companion has at least {_fmt(post.m2_min)} M☉"
     text += ". Values are medians with 68 % intervals"
     text += "." if post.converged else (f"; the sampler had not converged (chain {post.n_steps} steps, "
-                                        f"autocorrelation time {post.tau_max:.0f}), so the intervals are rough.")
+                                        f"autocorrelation time {fmt_fixed(post.tau_max, 0)}), so the intervals are rough.")
     published = next((o for o in facts.system.orbits if o.pair == subject and o.kind in ("spectroscopic", "combined")),
                      None)
     if published is not None:
@@ -189,14 +190,14 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         s_pub = published.period.uncertainty * (365.25 if published.period_unit == "yr" else 1.0)
         z = abs(post.P.q50 - p_pub) / math.hypot(post.P.half_width, s_pub)
         quantities.append(Quantity("period_vs_published", "Period − published period", z, "σ"))
-        text += (f" The published period ({published.ref}, {p_pub:.1f} d) "
-                 + ("agrees" if z < 3 else "differs") + f" ({z:.1f}σ).")
+        text += (f" The published period ({published.ref}, {fmt_fixed(p_pub, 1)} d) "
+                 + ("agrees" if z < 3 else "differs") + f" ({fmt_fixed(z, 1)}σ).")
         sources = tuple(dict.fromkeys((*sources, published.ref)))
     strength = max(0.0, float(solution.log10_bayes_factor))
     outcome = "supports" if strength > settings.decisive else "neutral"
     return RULE.assessment(subject, outcome, text, strength=strength, quantities=tuple(quantities),
                            statistic=Quantity("rms", "RMS of the residuals", float(fit.rms), "km/s",
-                                              how=f"χ² = {fit.chi2:.1f} for {fit.dof} dof with the fitted jitter"),
+                                              how=f"χ² = {fmt_fixed(fit.chi2, 1)} for {fit.dof} dof with the fitted jitter"),
                            sources=sources)
 
 

@@ -39,6 +39,7 @@ from pydantic import Field
 
 from dossier.astro import binary, hierarchy
 from dossier.astro.seeding import seed_from
+from dossier.fmt import fmt_fixed, fmt_sig
 from dossier.rules.base import Assessment, Quantity, Rule, RuleSettings
 from dossier.rules.facts import SystemFacts
 
@@ -129,24 +130,24 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
         kwargs: dict = {}
         if inner_orbit is not None:
             kwargs["a_in"] = binary.semimajor_axis_au(inner_orbit.period_years, mi)
-            how.append(f"a_in from the published orbit of {inner_id} (P = {inner_orbit.period_years:.3g} yr)")
+            how.append(f"a(in) from the published orbit of {inner_id} (P = {fmt_sig(inner_orbit.period_years, 3)} yr)")
         else:
             kwargs["s_in"] = inner_f.rho_arcsec * d
-            how.append(f"a_in drawn from ρ = {inner_f.rho_arcsec:.3g}″ of {inner_id}")
+            how.append(f"a(in) drawn from ρ = {fmt_sig(inner_f.rho_arcsec, 3)}″ of {inner_id}")
         if outer_orbit is not None:
             kwargs["a_out"] = binary.semimajor_axis_au(outer_orbit.period_years, mi + mo)
             if outer_orbit.eccentricity is not None:
                 kwargs["e_out"] = outer_orbit.eccentricity.value
-            how.append(f"a_out from the published orbit of {subject}")
+            how.append(f"a(out) from the published orbit of {subject}")
         else:
             kwargs["s_out"] = outer.rho_arcsec * d
-            how.append(f"a_out drawn from ρ = {outer.rho_arcsec:.3g}″")
+            how.append(f"a(out) drawn from ρ = {fmt_sig(outer.rho_arcsec, 3)}″")
         vis_in, vis_out = facts.visual_orbit(inner_id), facts.visual_orbit(subject)
         if vis_in is not None and vis_out is not None:
             i1, n1, i2, n2 = (vis_in.inclination.value, vis_in.node.value, vis_out.inclination.value, vis_out.node.value)
             both = np.array([hierarchy.mutual_inclination(i1, n1, i2, n2), hierarchy.mutual_inclination(i1, n1 + 180.0, i2, n2)])
             kwargs["i_mut_deg"] = both[rng.integers(0, 2, n)]
-            how.append(f"mutual inclination {both[0]:.0f}° or {both[1]:.0f}° (nodes ambiguous by 180°)")
+            how.append(f"mutual inclination {fmt_fixed(both[0], 0)}° or {fmt_fixed(both[1], 0)}° (nodes ambiguous by 180°)")
         else:
             how.append("mutual inclination isotropic")
         draws = hierarchy.stability_probability(rng, n, mo / mi, **kwargs)
@@ -160,16 +161,16 @@ def weigh(facts: SystemFacts, subject: str, settings: Settings) -> Assessment:
     q = m_out[0] / m_in[0]
     quantities = (
         Quantity("p_stable", "P(stable)", p, "", how="; ".join(how)),
-        Quantity("a_ratio", "a_out/a_in", float(r50), "", low=float(r16), high=float(r84),
+        Quantity("a_ratio", "a(out)/a(in)", float(r50), "", low=float(r16), high=float(r84),
                  how=f"inner pair {inner_id}, Monte Carlo of {draws.a_in.size} draws"),
-        Quantity("critical_ratio", "Critical a_out/a_in (Mardling & Aarseth 2001)", float(c50), "", low=float(c16),
-                 high=float(c84), how=f"q_out = {q:.2f}"),
-        Quantity("q_out", "Outer mass ratio q_out", q, ""),
+        Quantity("critical_ratio", "Critical a(out)/a(in) (Mardling & Aarseth 2001)", float(c50), "", low=float(c16),
+                 high=float(c84), how=f"q(out) = {fmt_fixed(q, 2)}"),
+        Quantity("q_out", "Outer mass ratio q(out)", q, ""),
     )
     verdict = ("unstable" if p < settings.unstable_below else "possibly unstable" if p < 0.5
                else "probably stable" if p < 1 - settings.unstable_below else "stable")
     text = (f"With {inner_id} inside, {subject} is {verdict} by the Mardling & Aarseth criterion: {_p_stable(p, settings.samples)} "
-            f"(a_out/a_in ≈ {r50:.3g}, 16–84 %: {r16:.3g}–{r84:.3g}; critical ≈ {c50:.3g}).")
+            f"(a(out)/a(in) ≈ {fmt_sig(r50, 3)}, 16–84 %: {fmt_sig(r16, 3)}–{fmt_sig(r84, 3)}; critical ≈ {fmt_sig(c50, 3)}).")
     if p < settings.unstable_below:
         text += (" A triple so tight cannot last: a separation, a mass or the hierarchy as described is wrong, "
                  "or a member is a chance neighbour.")

@@ -58,7 +58,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dossier.fmt import p_statement
+from dossier.fmt import fmt_signed, p_statement
 from dossier.rules.base import Assessment, Contribution, Verdict
 from dossier.schema.settings import VerdictSettings
 
@@ -277,10 +277,10 @@ def combine(pair: str, assessments: list[Assessment], settings: VerdictSettings,
         summary = f"Undetermined: {p('P(physical)', p_phys)}, the evidence is split."
     summary += note
     if top is not None:
-        summary += f" Moved most by: {top.line.lower()} ({top.log10:+.1f} in log10 odds, as used)."
-    reasons_for = tuple(f"{c.line}: {c.log10:+.2f} (log10 odds, as used)" for c in contributions_t
+        summary += f" Moved most by: {top.line.lower()} ({fmt_signed(top.log10, 1)} in log10 odds, as used)."
+    reasons_for = tuple(f"{c.line}: {fmt_signed(c.log10, 2)} (log10 odds, as used)" for c in contributions_t
                         if _direction(c.question, c.log10, status) > 0)
-    reasons_against = tuple(f"{c.line}: {c.log10:+.2f} (log10 odds, as used)" for c in contributions_t
+    reasons_against = tuple(f"{c.line}: {fmt_signed(c.log10, 2)} (log10 odds, as used)" for c in contributions_t
                             if _direction(c.question, c.log10, status) < 0)
     diagnostics_against = tuple(f"{a.title} (diagnostic, weighed inside the pair model): {a.explanation}"
                                 for a in assessments if a.rule in JOINT_RULES and _assessment_direction(a, status) < 0)

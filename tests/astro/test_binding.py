@@ -127,3 +127,16 @@ def test_marcum_q_far_into_the_tail_matches_quadrature():
         expected = integrate.quad(rice, b, b + 40, points=[b + 0.01, b + 0.1, b + 1], epsabs=0, epsrel=1e-13,
                                   limit=500)[0]
         assert binding._marcum_q(np.array(a), np.array(b)) == pytest.approx(expected, rel=1e-11)
+
+
+def test_marcum_q_near_zero_radius_with_a_large_offset():
+    # Found by hypothesis: Boost's noncentral chi-square survival function overflows its gamma function for
+    # b ~ 1e-4 and a ~ 18; the CDF route gives 1 - tiny. Reference: scipy.stats.ncx2.sf where it works.
+    from scipy.stats import ncx2
+
+    from dossier.astro.binding import _marcum_q
+
+    q = _marcum_q(np.array([18.42681049, 1.0, 0.0]), np.array([1.69338976e-04, 0.009, 1.41421356]))
+    assert np.all(np.isfinite(q)) and np.all((q >= 0) & (q <= 1))
+    assert q[0] == pytest.approx(1.0, abs=1e-12)
+    assert q[1:] == pytest.approx(ncx2.sf(np.array([0.009, 1.41421356]) ** 2, 2, np.array([1.0, 0.0]) ** 2), rel=1e-9)

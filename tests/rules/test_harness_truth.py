@@ -27,7 +27,7 @@ def test_optical_pairs_are_called_optical(seed):
     assert by_rule["parallax-agreement"].outcome == "against"
     assert result.verdicts["AB"].status == "optical"
     # the verdict lists the parallax disagreement among its reasons, with the value it used
-    assert any(r.startswith("Parallaxes: -") for r in result.verdicts["AB"].reasons_for)
+    assert any(r.startswith("Parallaxes: \u2212") for r in result.verdicts["AB"].reasons_for)
 
 
 def test_comoving_pairs_beyond_the_tidal_limit_are_called_comoving():
