@@ -489,6 +489,11 @@ def _subject_of_key(key: str) -> tuple[str, str]:
     return subject, source.group(1) if source and not source.group(1).isdigit() else ""
 
 
+#: How a change of a kind named by its key alone is described.
+_NAMED_BY_KEY = {"system": "System {key}", "verdict": "Verdict on {key}", "grade": "Grade of the claimed companion {key}",
+                 "source": "Source {key}", "log": "Observing log of {key}"}
+
+
 def describe(change: Change, labels: dict[str, str] | None = None) -> str:
     """A change in words, without its raw key: 'Parallax of D from sky-survey-3', 'Parallax agreement
     on AD: parallax difference ϖ₁ − ϖ₂', 'Verdict on AD'.
@@ -499,18 +504,10 @@ def describe(change: Change, labels: dict[str, str] | None = None) -> str:
     entry = change.new if change.new is not None else change.old
     entry = entry if isinstance(entry, dict) else {}
     key = change.key
-    if change.kind == "system":
-        return f"System {key}"
-    if change.kind == "verdict":
-        return f"Verdict on {key}"
+    if change.kind in _NAMED_BY_KEY:
+        return _NAMED_BY_KEY[change.kind].format(key=key)
     if change.kind == "term":
         return f"Term of the verdict on {entry.get('pair', key)}: {entry.get('line', key)}"
-    if change.kind == "grade":
-        return f"Grade of the claimed companion {key}"
-    if change.kind == "source":
-        return f"Source {key}"
-    if change.kind == "log":
-        return f"Observing log of {key}"
     if change.kind == "assessment":
         rule, _, subject = key.partition(" · ")
         return f"{_rule_title(entry.get('rule', rule))} on {subject or entry.get('subject', '')}".strip()

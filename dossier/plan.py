@@ -153,17 +153,9 @@ def score_pair(now_yr: float, last_yr: float | None, rho: float | None, theta_ra
 
 def _rates(result, pair_id: str, now_yr: float) -> tuple[float | None, float | None, float | None, str]:
     """θ rate (deg/yr), ρ rate (″/yr), ρ, and where they came from."""
+    # (a pair with an orbit, fitted or published, is planned from its posterior instead: see plan)
     facts = result.facts
-    orbit = facts.visual_orbit(pair_id)
     log = facts.logs.get(pair_id)
-    if orbit is not None:
-        from dossier.astro import orbit as orbits
-
-        el = (orbit.period_years, orbit.periastron_time.value, orbit.eccentricity.value, orbit.semimajor_axis.value,
-              orbit.inclination.value, orbit.node.value, orbit.periastron_argument.value)
-        rho, theta = orbits.ephemeris(np.array([now_yr - 0.5, now_yr + 0.5]), *el)
-        d_theta = (float(theta[1] - theta[0]) + 180.0) % 360.0 - 180.0
-        return d_theta, float(rho[1] - rho[0]), float(rho.mean()), "published orbit"
     if log is not None and log.linear is not None:
         x, y, _, _ = log.linear.predict(np.array([now_yr]))
         vx, vy = log.linear.coef_x[1], log.linear.coef_y[1]
@@ -191,16 +183,13 @@ def plan(results: dict, site: Site, date: dt.date, *, min_altitude_deg: float = 
         for pair in result.system.pairs:
             log = result.facts.logs.get(pair.id)
             last = float(log.t.max()) if log is not None else None
-            theta_rate, rho_rate, rho, source = _rates(result, pair.id, now_yr)
-            if rho is None and last is None:
-                continue  # nothing known of where to look
-            score, reason = score_pair(now_yr, last, rho, theta_rate, rho_rate)
             extra = {}
             posterior = result.facts.ephemeris_posterior(pair.id)
             if posterior is not None:
                 from dossier.ephemerides import describe, outlook
 
                 look = outlook(posterior, now_yr)
+                theta_rate = rho_rate = None
                 rho = float(look.prediction.rho[2][0])
                 score = look.spread_over_measure
                 gain = look.period_gain
@@ -211,6 +200,11 @@ def plan(results: dict, site: Site, date: dt.date, *, min_altitude_deg: float = 
                 source = describe(posterior)
                 extra = {"best_resolved": look.best_resolved, "best_resolved_rho": look.best_resolved_rho,
                          "most_informative": look.most_informative}
+            else:
+                theta_rate, rho_rate, rho, source = _rates(result, pair.id, now_yr)
+                if rho is None and last is None:
+                    continue  # nothing known of where to look
+                score, reason = score_pair(now_yr, last, rho, theta_rate, rho_rate)
             targets.append(Target(sid, pair.id, last, None if last is None else now_yr - last, theta_rate, rho_rate,
                                   rho, score, f"{reason} ({source})", **extra))
     targets.sort(key=lambda t: (-t.score, t.system, t.pair))

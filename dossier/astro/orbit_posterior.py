@@ -1120,29 +1120,10 @@ def _systematic(rng: np.random.Generator, w: NDArray[np.float64], n: int) -> NDA
     return np.searchsorted(c, (rng.random() + np.arange(n)) / n, side="right").clip(0, w.size - 1)
 
 
-def sample_importance(
-    t: ArrayLike,
-    x: ArrayLike,
-    y: ArrayLike,
-    sx: ArrayLike,
-    sy: ArrayLike,
-    *,
-    parallax_mas: float | None = None,
-    sigma_parallax_mas: float = 0.0,
-    mass_prior: MassPrior | tuple | None = BROAD_MASS_PRIOR,
-    n_samples: int = 1000,
-    seed: Any = None,
-    max_draws: int = 1_000_000,
-    period_range: tuple[float, float] | None = None,
-    start: orbits.OrbitFit | None = None,
-    min_ess: float | None = None,
-    a_range: tuple[float, float] | None = None,
-) -> OrbitPosterior:
+def sample_importance(*args: Any, **kwargs: Any) -> OrbitPosterior:
     """Posterior of a visual orbit by adaptive importance sampling, the Thiele-Innes constants marginalised.
 
-    See ``_importance`` for the parameters and the method; this returns only the posterior (``posterior``
-    also reads the effective sample size).
+    The parameters and the method are those of ``_importance``; this returns only the posterior
+    (``posterior`` also reads the effective sample size).
     """
-    return _importance(t, x, y, sx, sy, parallax_mas=parallax_mas, sigma_parallax_mas=sigma_parallax_mas,
-                       mass_prior=mass_prior, n_samples=n_samples, seed=seed, max_draws=max_draws,
-                       period_range=period_range, start=start, min_ess=min_ess, a_range=a_range)[0]
+    return _importance(*args, **kwargs)[0]

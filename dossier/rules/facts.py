@@ -267,8 +267,18 @@ class SystemFacts:
 
         The posterior fitted to the log when the arc determines the orbit; else draws about the
         published visual orbit (``OrbitPosterior.from_published``); else a partial-arc posterior
-        (its bands are wide, honestly); else None.
+        (its bands are wide, honestly); else None. Chosen (and drawn) once per pair: the figures,
+        the page's table, the catalogue and the plan all read the same one.
         """
+        if pair_id not in self._ephemeris_posteriors:
+            self._ephemeris_posteriors[pair_id] = self._choose_ephemeris_posterior(pair_id)
+        return self._ephemeris_posteriors[pair_id]
+
+    @cached_property
+    def _ephemeris_posteriors(self) -> dict:
+        return {}
+
+    def _choose_ephemeris_posterior(self, pair_id: str):
         from dossier.astro import orbit_posterior as op
 
         fitted = self.visual_posteriors.get(pair_id)
